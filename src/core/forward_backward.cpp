@@ -1,0 +1,195 @@
+#include "core/forward_backward.hpp"
+
+#include <cmath>
+
+namespace dobudget {
+
+void ExpectedCounts::reset(int Z, int A, int O) {
+  initial = Vector::Zero(Z);
+  transitions.assign(static_cast<std::size_t>(A), Matrix::Zero(Z, Z));
+  emissions = Matrix::Zero(Z, O);
+  decision = Matrix::Zero(Z, A);
+  loglik = 0.0;
+}
+
+ForwardBackward::ForwardBackward(int Z, int A, int O, int H)
+    : Z_(Z), A_(A), O_(O), H_(H),
+      q0_(Z), qE_(static_cast<std::size_t>(Z) * O), qA_(static_cast<std::size_t>(Z) * A),
+      M_(static_cast<std::size_t>(A) * O * Z * Z),
+      alpha_(static_cast<std::size_t>(H + 1) * Z), scale_(static_cast<std::size_t>(H + 1)),
+      beta_(Z), next_(Z), tmp_(Z), outer_(static_cast<std::size_t>(A) * O * Z * Z) {}
+
+void ForwardBackward::load(const Pomdp& m, const Matrix* decision) {
+  for (int z = 0; z < Z_; ++z) q0_[z] = m.initial(z);
+  for (int z = 0; z < Z_; ++z)
+    for (int o = 0; o < O_; ++o) qE_[z * O_ + o] = m.emissions(z, o);
+  has_decision_ = decision != nullptr && decision->size() > 0;
+  if (has_decision_)
+    for (int z = 0; z < Z_; ++z)
+      for (int a = 0; a < A_; ++a) qA_[z * A_ + a] = (*decision)(z, a);
+  for (int a = 0; a < A_; ++a) {
+    const Matrix& T = m.transitions[static_cast<std::size_t>(a)];
+    for (int o = 0; o < O_; ++o) {
+      double* Mao = M_.data() + (static_cast<std::size_t>(a) * O_ + o) * Z_ * Z_;
+      for (int z = 0; z < Z_; ++z)
+        for (int y = 0; y < Z_; ++y) Mao[z * Z_ + y] = T(z, y) * qE_[y * O_ + o];
+    }
+  }
+}
+
+// Forward pass with scaling; leaves alpha_t (normalised) in alpha_ and c_t in scale_.
+double ForwardBackward::forward(const std::int32_t* o, const std::int32_t* a, int H, bool logged) {
+  const int Z = Z_;
+  const bool w = logged && has_decision_;
+  double* al = alpha_.data();
+  double c = 0.0;
+  for (int z = 0; z < Z; ++z) {
+    double v = q0_[z] * qE_[z * O_ + o[0]];
+    if (w && H > 0) v *= qA_[z * A_ + a[0]];
+    al[z] = v;
+    c += v;
+  }
+  double ll = std::log(c);
+  scale_[0] = c;
+  for (int z = 0; z < Z; ++z) al[z] /= c;
+  for (int t = 0; t < H; ++t) {
+    const double* prev = al + static_cast<std::ptrdiff_t>(t) * Z;
+    double* cur = al + static_cast<std::ptrdiff_t>(t + 1) * Z;
+    const double* M = M_.data() + (static_cast<std::size_t>(a[t]) * O_ + o[t + 1]) * Z * Z;
+    for (int y = 0; y < Z; ++y) cur[y] = 0.0;
+    for (int z = 0; z < Z; ++z) {
+      const double p = prev[z];
+      const double* row = M + static_cast<std::ptrdiff_t>(z) * Z;
+      for (int y = 0; y < Z; ++y) cur[y] += p * row[y];
+    }
+    if (w && t + 1 < H) {
+      const double* qa = qA_.data() + a[t + 1];
+      for (int y = 0; y < Z; ++y) cur[y] *= qa[static_cast<std::ptrdiff_t>(y) * A_];
+    }
+    c = 0.0;
+    for (int y = 0; y < Z; ++y) c += cur[y];
+    scale_[static_cast<std::size_t>(t + 1)] = c;
+    ll += std::log(c);
+    const double inv = 1.0 / c;
+    for (int y = 0; y < Z; ++y) cur[y] *= inv;
+  }
+  return ll;
+}
+
+// Backward pass and expected counts. With v(z') = w_{t+1}(z') beta_{t+1}(z') / c_{t+1}:
+//   xi_t(z, z') = alpha_t(z) M(z, z') v(z'), so we accumulate the outer product alpha_t v^T per
+//   (a_t, o_{t+1}) and multiply by M once per E-step (see accumulate()).
+void ForwardBackward::backward_and_count(const std::int32_t* o, const std::int32_t* a, int H, bool logged,
+                                         ExpectedCounts& c) {
+  const int Z = Z_;
+  const bool w = logged && has_decision_;
+  const double* al = alpha_.data();
+  double* beta = beta_.data();
+  double* v = next_.data();
+  for (int z = 0; z < Z; ++z) beta[z] = 1.0;
+  // gamma_H
+  {
+    const double* aH = al + static_cast<std::ptrdiff_t>(H) * Z;
+    double* E = c.emissions.data();
+    for (int z = 0; z < Z; ++z) E[z * O_ + o[H]] += aH[z];
+  }
+  for (int t = H - 1; t >= 0; --t) {
+    const double inv = 1.0 / scale_[static_cast<std::size_t>(t + 1)];
+    if (w && t + 1 < H) {
+      const double* qa = qA_.data() + a[t + 1];
+      for (int y = 0; y < Z; ++y) v[y] = qa[static_cast<std::ptrdiff_t>(y) * A_] * beta[y] * inv;
+    } else {
+      for (int y = 0; y < Z; ++y) v[y] = beta[y] * inv;
+    }
+    const std::size_t block = (static_cast<std::size_t>(a[t]) * O_ + o[t + 1]) * Z * Z;
+    const double* M = M_.data() + block;
+    double* X = outer_.data() + block;
+    const double* at = al + static_cast<std::ptrdiff_t>(t) * Z;
+    for (int z = 0; z < Z; ++z) {
+      const double* row = M + static_cast<std::ptrdiff_t>(z) * Z;
+      double* xrow = X + static_cast<std::ptrdiff_t>(z) * Z;
+      const double az = at[z];
+      double s = 0.0;
+      for (int y = 0; y < Z; ++y) {
+        s += row[y] * v[y];
+        xrow[y] += az * v[y];
+      }
+      beta[z] = s;  // beta_t(z)
+    }
+    // gamma_t(z) = alpha_t(z) beta_t(z)
+    double* E = c.emissions.data();
+    for (int z = 0; z < Z; ++z) {
+      const double g = at[z] * beta[z];
+      E[z * O_ + o[t]] += g;
+      if (w) c.decision(z, a[t]) += g;
+      if (t == 0) c.initial(z) += g;
+    }
+  }
+  if (H == 0)
+    for (int z = 0; z < Z; ++z) c.initial(z) += al[z];
+}
+
+double ForwardBackward::accumulate(const DataView& view, ExpectedCounts& counts) {
+  if (view.count == 0) return 0.0;
+  const Dataset& d = *view.data;
+  const bool logged = view.regime == Regime::logged;
+  std::fill(outer_.begin(), outer_.end(), 0.0);
+  double ll = 0.0;
+  for (int i = 0; i < view.count; ++i) {
+    ll += forward(d.obs(i), d.act(i), d.horizon, logged);
+    backward_and_count(d.obs(i), d.act(i), d.horizon, logged, counts);
+  }
+  // N_T[a](z, z') += sum_o M[a][o](z, z') X[a][o](z, z')
+  const std::size_t ZZ = static_cast<std::size_t>(Z_) * Z_;
+  for (int a = 0; a < A_; ++a) {
+    double* N = counts.transitions[static_cast<std::size_t>(a)].data();
+    for (int o = 0; o < O_; ++o) {
+      const double* M = M_.data() + (static_cast<std::size_t>(a) * O_ + o) * ZZ;
+      const double* X = outer_.data() + (static_cast<std::size_t>(a) * O_ + o) * ZZ;
+      for (std::size_t k = 0; k < ZZ; ++k) N[k] += M[k] * X[k];
+    }
+  }
+  counts.loglik += ll;
+  return ll;
+}
+
+double ForwardBackward::log_likelihood(const DataView& view) {
+  const Dataset& d = *view.data;
+  double ll = 0.0;
+  for (int i = 0; i < view.count; ++i) ll += forward(d.obs(i), d.act(i), d.horizon, view.regime == Regime::logged);
+  return ll;
+}
+
+namespace {
+
+// row <- (counts + prior) / sum; a row with no mass and no prior stays uniform.
+template <typename RowIn, typename RowOut>
+void normalise_row(const RowIn& counts, double prior, RowOut&& out) {
+  const auto n = counts.size();
+  double s = 0.0;
+  for (Eigen::Index j = 0; j < n; ++j) s += counts(j) + prior;
+  for (Eigen::Index j = 0; j < n; ++j) out(j) = s > 0.0 ? (counts(j) + prior) / s : 1.0 / static_cast<double>(n);
+}
+
+}  // namespace
+
+void maximise(const ExpectedCounts& c, double prior, Pomdp& m, Matrix* decision) {
+  normalise_row(c.initial, prior, m.initial);
+  for (int a = 0; a < m.actions; ++a)
+    for (int z = 0; z < m.states; ++z)
+      normalise_row(c.transitions[static_cast<std::size_t>(a)].row(z), prior, m.transitions[static_cast<std::size_t>(a)].row(z));
+  for (int z = 0; z < m.states; ++z) normalise_row(c.emissions.row(z), prior, m.emissions.row(z));
+  if (decision != nullptr && decision->size() > 0)
+    for (int z = 0; z < m.states; ++z) normalise_row(c.decision.row(z), prior, decision->row(z));
+}
+
+double log_prior(const Pomdp& m, const Matrix* decision, double prior) {
+  if (prior == 0.0) return 0.0;
+  double s = m.initial.array().log().sum();
+  for (const auto& T : m.transitions) s += T.array().log().sum();
+  s += m.emissions.array().log().sum();
+  if (decision != nullptr && decision->size() > 0) s += decision->array().log().sum();
+  return prior * s;
+}
+
+}  // namespace dobudget

@@ -1,0 +1,57 @@
+#include "core/model_kl.hpp"
+
+#include <cmath>
+#include <limits>
+
+#include "core/belief.hpp"
+
+namespace dobudget {
+
+void predictives(const Pomdp& m, const Dataset& h, std::vector<double>& out) {
+  const int H = h.horizon, O = m.observations;
+  out.resize(static_cast<std::size_t>(h.count) * (H + 1) * O);
+  std::vector<double> b(static_cast<std::size_t>(m.states)), p(static_cast<std::size_t>(m.states));
+  for (int i = 0; i < h.count; ++i) {
+    const auto* o = h.obs(i);
+    const auto* a = h.act(i);
+    double* pred = out.data() + static_cast<std::size_t>(i) * (H + 1) * O;
+    for (int s = 0; s < m.states; ++s) b[static_cast<std::size_t>(s)] = m.initial(s);
+    for (int t = 0; t <= H; ++t) {
+      if (t > 0) predict(m, b.data(), a[t - 1], p.data());
+      else p = b;
+      observation_distribution(m, p.data(), pred + static_cast<std::ptrdiff_t>(t) * O);
+      if (condition(m, p.data(), o[t]) == 0.0) {
+        // The history is impossible in this model: keep predicting from the prior belief.
+        for (int s = 0; s < m.states; ++s) p[static_cast<std::size_t>(s)] = 1.0 / m.states;
+      }
+      b.swap(p);
+    }
+  }
+}
+
+EvaluationSet make_evaluation_set(const Pomdp& truth, Dataset histories) {
+  EvaluationSet e;
+  e.histories = std::move(histories);
+  predictives(truth, e.histories, e.truth);
+  double s = 0.0;
+  for (double p : e.truth)
+    if (p > 0.0) s += p * std::log(p);
+  e.negentropy = s;
+  return e;
+}
+
+double model_kl(const EvaluationSet& e, const Pomdp& fitted) {
+  std::vector<double> q;
+  predictives(fitted, e.histories, q);
+  double cross = 0.0;  // sum p log q
+  for (std::size_t k = 0; k < q.size(); ++k) {
+    const double p = e.truth[k];
+    if (p <= 0.0) continue;
+    if (q[k] <= 0.0) return std::numeric_limits<double>::infinity();
+    cross += p * std::log(q[k]);
+  }
+  const double n = static_cast<double>(e.histories.count) * (e.histories.horizon + 1);
+  return (e.negentropy - cross) / n;
+}
+
+}  // namespace dobudget

@@ -1,0 +1,32 @@
+// model_kl (design.md sec. 4), in nats per observation:
+//   1/(H+1) sum_{t=0..H} E_h[ KL( p(o_t | o_<t, do(a_<t)) || q(o_t | o_<t, do(a_<t)) ) ],
+// with histories h drawn from the true environment under the evaluation policy and each
+// predictive computed exactly by belief filtering in its own model (belief.hpp):
+//   pred_0 = p0^T E,   pred_t = (b_{t-1}^T T[a_{t-1}]) E,   b_t = filter(b_{t-1}, a_{t-1}, o_t).
+// The true predictives and their negative entropies are computed once per replicate
+// (EvaluationSet) and shared by every strategy and budget (common random numbers).
+#pragma once
+#include <vector>
+
+#include "core/dataset.hpp"
+#include "core/pomdp.hpp"
+
+namespace dobudget {
+
+// Predictives p(o_t | history) of `model` along every episode of `histories`, t = 0..H, written
+// to out[(i*(H+1) + t)*O + o]. Predictive over observations only: the actions are interventions.
+void predictives(const Pomdp& model, const Dataset& histories, std::vector<double>& out);
+
+struct EvaluationSet {
+  Dataset histories;
+  std::vector<double> truth;  // true predictives, layout as in predictives()
+  double negentropy = 0.0;    // sum over histories and t of sum_o p log p
+};
+
+EvaluationSet make_evaluation_set(const Pomdp& truth, Dataset histories);
+
+// KL averaged over t and histories. +infinity if the model gives zero probability to an
+// observation the truth can produce.
+double model_kl(const EvaluationSet& eval, const Pomdp& fitted);
+
+}  // namespace dobudget

@@ -1,0 +1,136 @@
+#include "core/unit.hpp"
+
+#include <chrono>
+#include <map>
+#include <tuple>
+
+#include "core/dataset.hpp"
+#include "core/fit.hpp"
+#include "core/model_kl.hpp"
+#if __has_include("core/return_gap.hpp")
+#include "core/return_gap.hpp"
+#define DOBUDGET_HAVE_RETURN_GAP 1
+#endif
+#include "core/synthetic.hpp"
+
+namespace dobudget {
+
+std::vector<UnitId> enumerate_units(const Study& study) {
+  std::vector<UnitId> units;
+  for (const auto& sc : study.scenarios) {
+    const int draws = sc.settings.environment.given ? 1 : sc.settings.environment.draws;
+    for (int d = 0; d < draws; ++d)
+      for (int r = 0; r < sc.settings.replicates; ++r) units.push_back({sc.index, d, r});
+  }
+  return units;
+}
+
+namespace {
+
+// The fit a (strategy, logged, pilot) cell needs, with coinciding data mapped to one key.
+struct FitKey {
+  Strategy strategy;
+  int logged;
+  int pilot;
+  auto operator<=>(const FitKey&) const = default;
+};
+
+FitKey fit_key(Strategy s, int logged, int pilot) {
+  if (s == Strategy::pilot_only || logged == 0) return {Strategy::pilot_only, 0, pilot};
+  return {s, logged, pilot};
+}
+
+}  // namespace
+
+int fits_per_unit(const ScenarioSettings& s) {
+  std::map<FitKey, int> keys;
+  for (Strategy st : s.strategies)
+    for (int L : s.logged_budgets)
+      for (int n : s.pilot_budgets) keys[fit_key(st, L, n)] = 1;
+  return static_cast<int>(keys.size());
+}
+
+DrawContext make_draw_context(const Study& study, int scenario, int draw) {
+  const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(scenario)].settings;
+  const StreamKey key{study.seed, static_cast<std::uint64_t>(scenario), static_cast<std::uint64_t>(draw), 0};
+  DrawContext c;
+  c.environment = make_environment(s, key);
+#ifdef DOBUDGET_HAVE_RETURN_GAP
+  for (Measure m : s.measures)
+    if (m == Measure::return_gap)
+      c.return_gap = std::make_shared<const ReturnGapReference>(prepare_return_gap(c.environment.model, s.planner, key));
+#endif
+  return c;
+}
+
+std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawContext& ctx) {
+  const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(u.scenario)].settings;
+  const Environment& env = ctx.environment;
+  const StreamKey key{study.seed, static_cast<std::uint64_t>(u.scenario), static_cast<std::uint64_t>(u.draw),
+                      static_cast<std::uint64_t>(u.replicate)};
+
+  // Nested data: every budget is a prefix of the largest budget's episodes.
+  Engine pilot_rng = make_engine(key, Purpose::pilot);
+  Engine logged_rng = make_engine(key, Purpose::logged);
+  const Dataset pilot = simulate(env, Regime::pilot, s.pilot_budgets.back(), pilot_rng);
+  const Dataset logged = simulate(env, Regime::logged, s.logged_budgets.back(), logged_rng);
+
+  bool want_kl = false, want_gap = false;
+  for (Measure m : s.measures) (m == Measure::model_kl ? want_kl : want_gap) = true;
+  EvaluationSet eval;
+  if (want_kl) {
+    Engine eval_rng = make_engine(key, Purpose::evaluation);
+    eval = make_evaluation_set(env.model, simulate(env, Regime::pilot, s.evaluation.trajectories, eval_rng));
+  }
+
+  struct Cell {
+    FitResult fit;
+    std::optional<double> kl, gap;
+    double seconds = 0.0;
+  };
+  std::map<FitKey, Cell> cells;
+  std::vector<RunRecord> rows;
+  for (Strategy st : s.strategies) {
+    for (int L : s.logged_budgets) {
+      for (int n : s.pilot_budgets) {
+        const FitKey k = fit_key(st, L, n);
+        auto it = cells.find(k);
+        if (it == cells.end()) {
+          std::vector<DataView> views{{&pilot, n, Regime::pilot}};
+          if (k.strategy != Strategy::pilot_only)
+            views.push_back({&logged, L, k.strategy == Strategy::regime_aware ? Regime::logged : Regime::pilot});
+          Engine fit_rng = make_engine(
+              key, Purpose::fit,
+              combine(combine(name_key(name(k.strategy)), static_cast<std::uint64_t>(k.logged)), static_cast<std::uint64_t>(k.pilot)));
+          Cell c;
+          const auto t0 = std::chrono::steady_clock::now();
+          c.fit = fit(views, k.strategy == Strategy::regime_aware, s.fit, env.model, fit_rng);
+          c.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+          if (want_kl) c.kl = model_kl(eval, c.fit.model);
+#ifdef DOBUDGET_HAVE_RETURN_GAP
+          if (want_gap) c.gap = return_gap(env.model, c.fit.model, *ctx.return_gap, s.planner, key).gap;
+#endif
+          it = cells.emplace(k, std::move(c)).first;
+        }
+        const Cell& c = it->second;
+        RunRecord r;
+        r.scenario = u.scenario;
+        r.environment = u.draw;
+        r.replicate = u.replicate;
+        r.strategy = st;
+        r.logged = L;
+        r.pilot = n;
+        r.model_kl = c.kl;
+        r.return_gap = c.gap;
+        r.loglik = c.fit.loglik;
+        r.iterations = c.fit.iterations;
+        r.converged = c.fit.converged;
+        r.fit_seconds = c.seconds;
+        rows.push_back(r);
+      }
+    }
+  }
+  return rows;
+}
+
+}  // namespace dobudget

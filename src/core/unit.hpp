@@ -1,0 +1,44 @@
+// A unit of work: one (scenario, environment draw, replicate) (design.md sec. 6). Running a unit
+// simulates its nested pilot and logged data, fits every strategy at every budget, and measures
+// each fit against the true environment.
+#pragma once
+#include <functional>
+#include <memory>
+#include <vector>
+
+#include "core/pomdp.hpp"
+#include "core/run_record.hpp"
+#include "core/seeding.hpp"
+#include "core/settings.hpp"
+
+namespace dobudget {
+
+struct UnitId {
+  int scenario = 0;
+  int draw = 0;
+  int replicate = 0;
+  friend bool operator==(const UnitId&, const UnitId&) = default;
+};
+
+// Every unit of a study in the canonical order (scenario, draw, replicate): the row order of runs.csv.
+std::vector<UnitId> enumerate_units(const Study& study);
+
+// Number of model fits a unit performs (fits whose data coincide are shared: pilot-only ignores
+// logged data, and with no logged episodes every strategy is the pilot-only fit).
+int fits_per_unit(const ScenarioSettings& s);
+
+struct ReturnGapReference;  // return_gap.hpp
+
+// What every replicate of one environment draw shares.
+struct DrawContext {
+  Environment environment;
+  std::shared_ptr<const ReturnGapReference> return_gap;  // null unless return_gap is measured
+};
+
+DrawContext make_draw_context(const Study& study, int scenario, int draw);
+
+// Runs one unit. Rows come in the order strategy (as listed in the settings), logged budget,
+// pilot budget.
+std::vector<RunRecord> run_unit(const Study& study, const UnitId& unit, const DrawContext& context);
+
+}  // namespace dobudget
