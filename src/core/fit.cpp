@@ -78,6 +78,40 @@ double log_likelihood(const std::vector<DataView>& data, const Pomdp& model, con
   return ll;
 }
 
+namespace {
+
+// One EM run from (m, qA) for at most `budget` further iterations (stops early when the relative
+// objective change falls below the tolerance). Returns the final state.
+struct Run {
+  Pomdp m;
+  Matrix qA;
+  double ll = 0.0, obj = -std::numeric_limits<double>::infinity(), prev = -std::numeric_limits<double>::infinity();
+  int iterations = 0;
+  bool converged = false;
+};
+
+void iterate(Run& run, int budget, ForwardBackward& fb, ExpectedCounts& counts, const std::vector<DataView>& data,
+             const FitSettings& s) {
+  Matrix* qAp = run.qA.size() > 0 ? &run.qA : nullptr;
+  const int stop_at = std::min(s.max_iterations, run.iterations + budget);
+  while (!run.converged) {
+    counts.reset(run.m.states, run.m.actions, run.m.observations);
+    fb.load(run.m, qAp);
+    run.ll = expectation(fb, data, counts);  // likelihood of the current parameters
+    run.obj = run.ll + log_prior(run.m, qAp, s.prior);
+    if (run.iterations > 0 && run.obj - run.prev <= s.tolerance * std::abs(run.prev)) {
+      run.converged = true;
+      break;
+    }
+    if (run.iterations >= stop_at) break;
+    run.prev = run.obj;
+    maximise(counts, s.prior, run.m, qAp);
+    ++run.iterations;
+  }
+}
+
+}  // namespace
+
 FitResult fit(const std::vector<DataView>& data, bool decision_rule, const FitSettings& s, const Pomdp& shape,
               Engine& rng) {
   const int Z = s.latent_states;
@@ -85,44 +119,40 @@ FitResult fit(const std::vector<DataView>& data, bool decision_rule, const FitSe
   ForwardBackward fb(Z, shape.actions, shape.observations, max_horizon(data));
   ExpectedCounts counts;
 
+  // Screening: every random start runs `screening_iterations` EM steps ("small EM", Biernacki,
+  // Celeux and Govaert, Comput. Stat. Data Anal. 41, 2003, sec. 3.2).
+  // screening_iterations = 0 turns screening off: every start runs to convergence.
+  const bool screen = s.screening_iterations > 0;
+  std::vector<Run> runs(static_cast<std::size_t>(std::max(1, s.restarts)));
+  for (auto& run : runs) {
+    run.m = empty_latent(shape, Z);
+    run.qA = decision_rule ? Matrix(Z, shape.actions) : Matrix();
+    initialise(rng, freq, run.m, run.qA);
+    iterate(run, screen ? s.screening_iterations : s.max_iterations, fb, counts, data, s);
+  }
+  // The `finalists` best screened runs continue to convergence; the best final objective wins.
+  std::vector<std::size_t> order(runs.size());
+  for (std::size_t i = 0; i < order.size(); ++i) order[i] = i;
+  std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return runs[a].obj > runs[b].obj; });
+  const std::size_t finalists =
+      screen ? std::min<std::size_t>(runs.size(), static_cast<std::size_t>(std::max(1, s.finalists))) : runs.size();
   FitResult best;
   best.objective = -std::numeric_limits<double>::infinity();
-  for (int r = 0; r < std::max(1, s.restarts); ++r) {
-    Pomdp m = empty_latent(shape, Z);
-    Matrix qA = decision_rule ? Matrix(Z, shape.actions) : Matrix();
-    initialise(rng, freq, m, qA);
-    Matrix* qAp = decision_rule ? &qA : nullptr;
-
-    double prev = -std::numeric_limits<double>::infinity();
-    double ll = 0.0, obj = 0.0;
-    int it = 0;
-    bool converged = false;
-    while (true) {
-      counts.reset(Z, shape.actions, shape.observations);
-      fb.load(m, qAp);
-      ll = expectation(fb, data, counts);  // likelihood of the current parameters
-      obj = ll + log_prior(m, qAp, s.prior);
-      if (it > 0 && obj - prev <= s.tolerance * std::abs(prev)) {
-        converged = true;
-        break;
-      }
-      if (it == s.max_iterations) break;
-      prev = obj;
-      maximise(counts, s.prior, m, qAp);
-      ++it;
-    }
-    // (m, qA) are the parameters whose objective is `obj`.
-    best.restart_objectives.push_back(obj);
-    if (obj > best.objective) {
-      best.model = std::move(m);
-      best.decision = std::move(qA);
-      best.loglik = ll;
-      best.objective = obj;
-      best.iterations = it;
-      best.converged = converged;
-      best.best_restart = r;
+  for (std::size_t k = 0; k < finalists; ++k) {
+    Run& run = runs[order[k]];
+    iterate(run, s.max_iterations, fb, counts, data, s);
+    if (run.obj > best.objective) {
+      best.objective = run.obj;
+      best.loglik = run.ll;
+      best.iterations = run.iterations;
+      best.converged = run.converged;
+      best.best_restart = static_cast<int>(order[k]);
     }
   }
+  for (const auto& run : runs) best.restart_objectives.push_back(run.obj);
+  Run& win = runs[static_cast<std::size_t>(best.best_restart)];
+  best.model = std::move(win.m);
+  best.decision = std::move(win.qA);
   return best;
 }
 

@@ -38,8 +38,11 @@ void ForwardBackward::load(const Pomdp& m, const Matrix* decision) {
 }
 
 // Forward pass with scaling; leaves alpha_t (normalised) in alpha_ and c_t in scale_.
+// ZC > 0 fixes the latent size at compile time (unrolled, vectorised loops); ZC = 0 is the
+// general case.
+template <int ZC>
 double ForwardBackward::forward(const std::int32_t* o, const std::int32_t* a, int H, bool logged) {
-  const int Z = Z_;
+  const int Z = ZC > 0 ? ZC : Z_;
   const bool w = logged && has_decision_;
   double* al = alpha_.data();
   double c = 0.0;
@@ -79,9 +82,10 @@ double ForwardBackward::forward(const std::int32_t* o, const std::int32_t* a, in
 // Backward pass and expected counts. With v(z') = w_{t+1}(z') beta_{t+1}(z') / c_{t+1}:
 //   xi_t(z, z') = alpha_t(z) M(z, z') v(z'), so we accumulate the outer product alpha_t v^T per
 //   (a_t, o_{t+1}) and multiply by M once per E-step (see accumulate()).
+template <int ZC>
 void ForwardBackward::backward_and_count(const std::int32_t* o, const std::int32_t* a, int H, bool logged,
                                          ExpectedCounts& c) {
-  const int Z = Z_;
+  const int Z = ZC > 0 ? ZC : Z_;
   const bool w = logged && has_decision_;
   const double* al = alpha_.data();
   double* beta = beta_.data();
@@ -129,15 +133,31 @@ void ForwardBackward::backward_and_count(const std::int32_t* o, const std::int32
     for (int z = 0; z < Z; ++z) c.initial(z) += al[z];
 }
 
+template <int ZC>
+double ForwardBackward::run_episodes(const Dataset& d, int count, bool logged, ExpectedCounts& counts) {
+  double ll = 0.0;
+  for (int i = 0; i < count; ++i) {
+    ll += forward<ZC>(d.obs(i), d.act(i), d.horizon, logged);
+    backward_and_count<ZC>(d.obs(i), d.act(i), d.horizon, logged, counts);
+  }
+  return ll;
+}
+
 double ForwardBackward::accumulate(const DataView& view, ExpectedCounts& counts) {
   if (view.count == 0) return 0.0;
   const Dataset& d = *view.data;
   const bool logged = view.regime == Regime::logged;
   std::fill(outer_.begin(), outer_.end(), 0.0);
   double ll = 0.0;
-  for (int i = 0; i < view.count; ++i) {
-    ll += forward(d.obs(i), d.act(i), d.horizon, logged);
-    backward_and_count(d.obs(i), d.act(i), d.horizon, logged, counts);
+  switch (Z_) {
+    case 1: ll = run_episodes<1>(d, view.count, logged, counts); break;
+    case 2: ll = run_episodes<2>(d, view.count, logged, counts); break;
+    case 3: ll = run_episodes<3>(d, view.count, logged, counts); break;
+    case 4: ll = run_episodes<4>(d, view.count, logged, counts); break;
+    case 5: ll = run_episodes<5>(d, view.count, logged, counts); break;
+    case 6: ll = run_episodes<6>(d, view.count, logged, counts); break;
+    case 8: ll = run_episodes<8>(d, view.count, logged, counts); break;
+    default: ll = run_episodes<0>(d, view.count, logged, counts); break;
   }
   // N_T[a](z, z') += sum_o M[a][o](z, z') X[a][o](z, z')
   const std::size_t ZZ = static_cast<std::size_t>(Z_) * Z_;
@@ -156,7 +176,7 @@ double ForwardBackward::accumulate(const DataView& view, ExpectedCounts& counts)
 double ForwardBackward::log_likelihood(const DataView& view) {
   const Dataset& d = *view.data;
   double ll = 0.0;
-  for (int i = 0; i < view.count; ++i) ll += forward(d.obs(i), d.act(i), d.horizon, view.regime == Regime::logged);
+  for (int i = 0; i < view.count; ++i) ll += forward<0>(d.obs(i), d.act(i), d.horizon, view.regime == Regime::logged);
   return ll;
 }
 

@@ -48,7 +48,11 @@ class ForwardBackward {
   double log_likelihood(const DataView& view);
 
  private:
+  template <int ZC>
+  double run_episodes(const Dataset& d, int count, bool logged, ExpectedCounts& counts);
+  template <int ZC>
   double forward(const std::int32_t* o, const std::int32_t* a, int horizon, bool logged);
+  template <int ZC>
   void backward_and_count(const std::int32_t* o, const std::int32_t* a, int horizon, bool logged, ExpectedCounts& c);
 
   int Z_, A_, O_, H_;

@@ -1,0 +1,12 @@
+// Files appear whole or not at all: contents go to a temporary name in the same directory,
+// are flushed, then renamed over the target (rename(2) is atomic within a file system; POSIX.1-2017).
+#pragma once
+#include <filesystem>
+#include <string_view>
+
+namespace dobudget::io {
+
+void write_file_atomically(const std::filesystem::path& file, std::string_view contents);
+std::string read_file(const std::filesystem::path& file);  // throws std::runtime_error naming the file
+
+}  // namespace dobudget::io

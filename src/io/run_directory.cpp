@@ -1,0 +1,135 @@
+#include "io/run_directory.hpp"
+
+#include <Eigen/Core>
+#include <boost/version.hpp>
+#include <fmt/format.h>
+#include <nlohmann/json.hpp>
+
+#include <chrono>
+#include <ctime>
+#include <stdexcept>
+
+#include "core/runner.hpp"
+#include "core/seeding.hpp"
+#include "io/atomic_file.hpp"
+#include "io/journal.hpp"
+#include "io/runs_table.hpp"
+
+namespace dobudget::io {
+
+std::vector<std::size_t> shard_units(std::size_t total, const Shard& shard) {
+  std::vector<std::size_t> out;
+  for (std::size_t i = static_cast<std::size_t>(shard.index); i < total; i += static_cast<std::size_t>(shard.count))
+    out.push_back(i);
+  return out;
+}
+
+std::string study_hash(const std::string& resolved) { return fmt::format("{:016x}", name_key(resolved)); }
+
+namespace {
+
+void claim_directory(const std::filesystem::path& dir, const std::string& resolved) {
+  const auto resolved_file = dir / "study.resolved.yaml";
+  if (std::filesystem::exists(resolved_file)) {
+    if (read_file(resolved_file) != resolved)
+      throw std::runtime_error(fmt::format(
+          "{} holds a different study (its study.resolved.yaml has hash {}, this study {}); choose another --out "
+          "directory",
+          dir.string(), study_hash(read_file(resolved_file)), study_hash(resolved)));
+    return;
+  }
+  if (std::filesystem::exists(dir) && !std::filesystem::is_empty(dir))
+    throw std::runtime_error(dir.string() + " exists, is not empty and is not a dobudget run directory; choose another --out directory");
+  std::filesystem::create_directories(dir);
+  write_file_atomically(resolved_file, resolved);
+}
+
+std::string utc_now() {
+  const std::time_t t = std::time(nullptr);
+  char buf[32];
+  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", std::gmtime(&t));
+  return buf;
+}
+
+}  // namespace
+
+void write_run_tables(const std::filesystem::path& dir, const std::vector<RunRecord>& rows) {
+  write_file_atomically(dir / "runs.csv", runs_csv(rows));
+  write_file_atomically(dir / "timings.csv", timings_csv(rows));
+}
+
+PlanOutcome plan_study(const Study& study, const std::string& resolved, const PlanOptions& opt) {
+  const auto start = std::chrono::steady_clock::now();
+  claim_directory(opt.out, resolved);
+  const std::vector<UnitId> units = enumerate_units(study);
+  const std::vector<std::size_t> mine = shard_units(units.size(), opt.shard.value_or(Shard{}));
+
+  Journal journal(opt.out / "units.journal");
+  PlanOutcome out;
+  out.units_total = mine.size();
+  out.torn_record_dropped = journal.torn_tail_dropped();
+  std::vector<std::size_t> todo;
+  for (std::size_t i : mine) {
+    if (journal.units().count(i)) ++out.units_resumed;
+    else todo.push_back(i);
+  }
+  Progress progress{out.units_resumed, mine.size(), 0, 0.0};
+  RunnerHooks hooks;
+  hooks.on_unit = [&](std::size_t index, std::vector<RunRecord>&& rows) {
+    journal.append(index, rows);
+    ++progress.done;
+    ++progress.computed;
+    progress.elapsed_seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+    if (opt.on_progress) opt.on_progress(progress);
+  };
+  hooks.stop_requested = opt.stop_requested;
+  run_units(study, units, todo, opt.threads, hooks);
+
+  out.units_done = progress.done;
+  out.complete = out.units_done == out.units_total;
+  out.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+  if (out.complete) {
+    for (std::size_t i : mine) {
+      const auto& rows = journal.units().at(i);
+      out.rows.insert(out.rows.end(), rows.begin(), rows.end());
+    }
+    if (!opt.shard || opt.shard->count == 1) write_run_tables(opt.out, out.rows);
+  }
+  return out;
+}
+
+void write_manifest(const std::filesystem::path& dir, const Study& study, const std::string& resolved,
+                    const PlanOptions& opt, const PlanOutcome& outcome) {
+  nlohmann::ordered_json j;
+  j["program"] = "dobudget";
+  j["version"] = DOBUDGET_VERSION;
+  j["study"] = study.name;
+  j["study_hash"] = study_hash(resolved);
+  j["seed"] = study.seed;
+  j["seeding"] =
+      "every stream: boost::random::mt19937_64 seeded with SplitMix64 folds of (seed, scenario, draw, replicate, "
+      "purpose, sub-key); purposes 1 environment, 2 logged, 3 pilot, 4 evaluation, 5 fit, 6 planner, 7 rollout, 8 "
+      "bootstrap";
+  j["libraries"] = {{"eigen", fmt::format("{}.{}.{}", EIGEN_WORLD_VERSION, EIGEN_MAJOR_VERSION, EIGEN_MINOR_VERSION)},
+                    {"boost", BOOST_LIB_VERSION},
+                    {"fmt", FMT_VERSION},
+                    {"nlohmann_json", fmt::format("{}.{}.{}", NLOHMANN_JSON_VERSION_MAJOR, NLOHMANN_JSON_VERSION_MINOR,
+                                                  NLOHMANN_JSON_VERSION_PATCH)},
+                    {"compiler", __VERSION__}};
+  std::size_t fits = 0;
+  for (const auto& u : enumerate_units(study))
+    fits += static_cast<std::size_t>(fits_per_unit(study.scenarios[static_cast<std::size_t>(u.scenario)].settings));
+  j["scenarios"] = study.scenarios.size();
+  j["units"] = enumerate_units(study).size();
+  j["fits"] = fits;
+  if (opt.shard) j["shard"] = fmt::format("{}/{}", opt.shard->index, opt.shard->count);
+  j["threads"] = opt.threads;
+  j["units_in_this_directory"] = outcome.units_done;
+  j["units_resumed"] = outcome.units_resumed;
+  j["complete"] = outcome.complete;
+  j["wall_seconds"] = outcome.seconds;
+  j["finished_utc"] = utc_now();
+  write_file_atomically(dir / "manifest.json", j.dump(2) + "\n");
+}
+
+}  // namespace dobudget::io

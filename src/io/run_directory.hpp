@@ -1,0 +1,67 @@
+// A run directory (design.md sec. 6, 7): study.resolved.yaml, manifest.json, units.journal (the
+// resume record), and once every unit is in, runs.csv and timings.csv in canonical order.
+// A directory made by a different study is refused; a second `plan` on the same directory
+// computes only the units its journal lacks.
+#pragma once
+#include <filesystem>
+#include <functional>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "core/run_record.hpp"
+#include "core/settings.hpp"
+#include "core/unit.hpp"
+
+namespace dobudget::io {
+
+struct Shard {
+  int index = 0;  // K, 0-based as scheduler job-array indices run
+  int count = 1;  // N
+};
+
+// Units of shard K of N: canonical unit i belongs to shard i mod N (round-robin dealing keeps
+// every shard's mix of scenarios, draws and replicates, hence of cheap and costly units, alike).
+std::vector<std::size_t> shard_units(std::size_t total_units, const Shard& shard);
+
+struct Progress {
+  std::size_t done = 0;   // units finished in this directory (including earlier runs)
+  std::size_t total = 0;  // units this run is responsible for
+  std::size_t computed = 0;  // units computed by this process so far
+  double elapsed_seconds = 0.0;
+};
+
+struct PlanOptions {
+  std::filesystem::path out;
+  int threads = 1;
+  std::optional<Shard> shard;
+  std::function<void(const Progress&)> on_progress;  // called after every finished unit
+  std::function<bool()> stop_requested;             // polled between units
+};
+
+struct PlanOutcome {
+  bool complete = false;            // every unit (of the shard) is in the journal
+  std::size_t units_total = 0;
+  std::size_t units_done = 0;
+  std::size_t units_resumed = 0;    // found already finished in the journal
+  bool torn_record_dropped = false;
+  double seconds = 0.0;
+  std::vector<RunRecord> rows;      // canonical order; filled when complete
+};
+
+// Hash identifying a study: FNV-1a of its resolved YAML, as 16 hex digits.
+std::string study_hash(const std::string& resolved_yaml);
+
+// Creates the directory (or checks that it belongs to this study), runs the missing units and,
+// when the study is complete (and not sharded), writes runs.csv and timings.csv.
+// Throws std::runtime_error for a directory that belongs to another study.
+PlanOutcome plan_study(const Study& study, const std::string& resolved_yaml, const PlanOptions& options);
+
+// Writes runs.csv and timings.csv (atomically) for rows in canonical order.
+void write_run_tables(const std::filesystem::path& dir, const std::vector<RunRecord>& rows);
+
+// Writes manifest.json: versions, seeds, study hash, units, fits, shard, threads and timings.
+void write_manifest(const std::filesystem::path& dir, const Study& study, const std::string& resolved_yaml,
+                    const PlanOptions& options, const PlanOutcome& outcome);
+
+}  // namespace dobudget::io
