@@ -29,10 +29,8 @@ int main(int argc, char** argv) {
   s.fit.latent_states = 4;
   // Compare restart schemes: K independent fits per scheme; a fit "fails" when its objective is
   // more than 1 nat per 1000 observations below the best objective any scheme found.
-  struct Scheme { const char* label; int restarts, screening, finalists; };
-  const std::vector<Scheme> schemes{{"3 full restarts", 3, 1000, 3}, {"5 full restarts", 5, 1000, 5},
-                                    {"10 x 10 screened, 1 final", 10, 10, 1}, {"10 x 10 screened, 2 final", 10, 10, 2},
-                                    {"20 x 5 screened, 2 final", 20, 5, 2}};
+  struct Scheme { const char* label; int restarts; };
+  const std::vector<Scheme> schemes{{"1 start", 1}, {"3 restarts", 3}, {"5 restarts", 5}};
   const int K = R;
   std::vector<double> fails(schemes.size()), secs(schemes.size()), klratio(schemes.size());
   int cases = 0;
@@ -55,8 +53,6 @@ int main(int argc, char** argv) {
       for (std::size_t c = 0; c < schemes.size(); ++c) {
         FitSettings f = s.fit;
         f.restarts = schemes[c].restarts;
-        f.screening_iterations = schemes[c].screening;
-        f.finalists = schemes[c].finalists;
         for (int k = 0; k < K; ++k) {
           Engine frng = make_engine(key, Purpose::fit, 1000 * c + k);
           const auto t0 = std::chrono::steady_clock::now();

@@ -9,12 +9,15 @@
 #include <cstdio>
 #include <thread>
 
+#include "core/answer.hpp"
 #include "core/synthetic.hpp"
 #include "core/unit.hpp"
+#include "io/answer_table.hpp"
 #include "io/atomic_file.hpp"
 #include "io/input_error.hpp"
 #include "io/model_file.hpp"
 #include "io/run_directory.hpp"
+#include "io/runs_table.hpp"
 #include "io/study_file.hpp"
 #include "io/summary_table.hpp"
 
@@ -101,10 +104,62 @@ int cmd_plan(const std::string& study_file, std::string out, int threads, const 
     return 0;
   }
   std::printf("%s", io::format_summary(study, outcome.rows).c_str());
-  std::printf("\nrun directory: %s (runs.csv, timings.csv, manifest.json); %zu units in %.1f s%s\n",
+  const auto answers = compute_study_answers(study, outcome.rows);
+  io::write_answer_files(opt.out, study, answers);
+  std::printf("\n%s", io::format_answer_table(answers).c_str());
+  std::printf("\nrun directory: %s (runs.csv, answer.csv, answer.md, manifest.json); %zu units in %.1f s%s\n",
               opt.out.string().c_str(), outcome.units_done, outcome.seconds,
               outcome.units_resumed ? fmt::format(" ({} resumed)", outcome.units_resumed).c_str() : "");
   std::printf("\n%s\n", caution);
+  return 0;
+}
+
+// "model_kl=0.01" -> (model_kl, 0.01)
+std::pair<Measure, double> parse_target(const std::string& text) {
+  const auto eq = text.find('=');
+  const auto m = parse_measure(text.substr(0, eq == std::string::npos ? 0 : eq));
+  try {
+    std::size_t used = 0;
+    if (eq == std::string::npos || !m) throw std::invalid_argument("");
+    const double v = std::stod(text.substr(eq + 1), &used);
+    if (used != text.size() - eq - 1 || !(v > 0.0)) throw std::invalid_argument("");
+    return {*m, v};
+  } catch (const std::logic_error&) {
+    throw BadInput("--target " + text + ": expected MEASURE=VALUE with MEASURE model_kl or return_gap and VALUE > 0");
+  }
+}
+
+int cmd_answer(const std::string& dir_text, const std::vector<std::string>& targets, double assurance,
+               const std::string& criterion, int bootstrap) {
+  const std::filesystem::path dir(dir_text);
+  if (!std::filesystem::exists(dir / "study.resolved.yaml"))
+    throw BadInput(dir_text + " is not a dobudget run directory (no study.resolved.yaml)");
+  if (!std::filesystem::exists(dir / "runs.csv"))
+    throw BadInput(dir_text + " has no runs.csv yet: finish the run with `dobudget plan` (or `merge` its shards) first");
+  const Study study = io::load_study(dir / "study.resolved.yaml");
+  AnswerOverrides ov;
+  for (const auto& t : targets) ov.targets.insert(parse_target(t));
+  if (assurance > 0.0) {
+    if (!(assurance < 1.0)) throw BadInput("--assurance must be in (0, 1)");
+    ov.assurance = assurance;
+  }
+  if (!criterion.empty()) {
+    ov.criterion = parse_criterion(criterion);
+    if (!ov.criterion) throw BadInput("--criterion " + criterion + ": expected assurance or mean");
+  }
+  if (bootstrap >= 0) ov.bootstrap = bootstrap;
+  for (const auto& [m, t] : ov.targets) {
+    bool measured = false;
+    for (const auto& sc : study.scenarios)
+      for (Measure k : sc.settings.measures) measured = measured || k == m;
+    if (!measured) throw BadInput(fmt::format("--target {}: this study did not measure {}", name(m), name(m)));
+  }
+  const auto rows = io::read_runs(dir / "runs.csv");
+  const auto answers = compute_study_answers(study, rows, ov);
+  io::write_answer_files(dir, study, answers);
+  std::printf("%s", io::format_answer_table(answers).c_str());
+  std::printf("\nwrote %s and %s\n\n%s\n", (dir / "answer.csv").string().c_str(), (dir / "answer.md").string().c_str(),
+              caution);
   return 0;
 }
 
@@ -150,6 +205,7 @@ int main(int argc, char** argv) {
                          "  dobudget check configs/default.yaml          validate, show every default, count fits\n"
                          "  dobudget plan configs/default.yaml --threads 2\n"
                          "  dobudget plan study.yaml --shard 3/10 --out runs/part3   (one job-array task)\n"
+                         "  dobudget answer runs/default --target model_kl=0.01 --assurance 0.9   (re-analysis, seconds)\n"
                          "  dobudget draw configs/default.yaml --out envs   (write the synthetic environments)\n\n"
                          "Caution: ") +
              caution);
@@ -173,6 +229,17 @@ int main(int argc, char** argv) {
   draw->add_option("study", study_file, "Study file (YAML)")->required();
   draw->add_option("--out", out, "Directory for the model files (default: environments/<study name>)");
 
+  std::vector<std::string> targets;
+  double assurance = 0.0;
+  std::string criterion;
+  int bootstrap = -1;
+  auto* answer = app.add_subcommand("answer", "Recompute the answer from a finished run directory (no simulation)");
+  answer->add_option("dir", out, "Run directory")->required();
+  answer->add_option("--target", targets, "MEASURE=VALUE, e.g. model_kl=0.01 (repeatable; replaces the study's target)");
+  answer->add_option("--assurance", assurance, "Fraction of (draw, replicate) pairs that must meet the target, in (0, 1)");
+  answer->add_option("--criterion", criterion, "assurance (default: fraction of pairs meeting the target) or mean (mean measure meets it)");
+  answer->add_option("--bootstrap", bootstrap, "Bootstrap resamples for the 90% interval (default 1000; 0: none)");
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -182,6 +249,7 @@ int main(int argc, char** argv) {
     if (*plan) return cmd_plan(study_file, out, threads, shard, quiet);
     if (*check) return cmd_check(study_file);
     if (*draw) return cmd_draw(study_file, out);
+    if (*answer) return cmd_answer(out, targets, assurance, criterion, bootstrap);
   } catch (const io::InputError& e) {
     std::fprintf(stderr, "error: %s\n", e.what());
     return 2;

@@ -80,35 +80,147 @@ double log_likelihood(const std::vector<DataView>& data, const Pomdp& model, con
 
 namespace {
 
-// One EM run from (m, qA) for at most `budget` further iterations (stops early when the relative
-// objective change falls below the tolerance). Returns the final state.
-struct Run {
+// Parameters as one flat vector of probability rows: q0 | qT[0] | ... | qT[A-1] | qE | qA
+// (row-major matrices, so each block is contiguous).
+struct Params {
   Pomdp m;
   Matrix qA;
-  double ll = 0.0, obj = -std::numeric_limits<double>::infinity(), prev = -std::numeric_limits<double>::infinity();
+};
+
+void pack(const Params& p, std::vector<double>& x) {
+  x.clear();
+  x.insert(x.end(), p.m.initial.data(), p.m.initial.data() + p.m.initial.size());
+  for (const auto& T : p.m.transitions) x.insert(x.end(), T.data(), T.data() + T.size());
+  x.insert(x.end(), p.m.emissions.data(), p.m.emissions.data() + p.m.emissions.size());
+  x.insert(x.end(), p.qA.data(), p.qA.data() + p.qA.size());
+}
+
+// Writes x back into p and renormalises every row (extrapolation keeps row sums at 1 only up to
+// rounding).
+void unpack(const std::vector<double>& x, Params& p) {
+  const double* src = x.data();
+  auto take = [&src](double* dst, Eigen::Index rows, Eigen::Index cols) {
+    for (Eigen::Index i = 0; i < rows; ++i) {
+      double sum = 0.0;
+      for (Eigen::Index j = 0; j < cols; ++j) sum += src[j];
+      for (Eigen::Index j = 0; j < cols; ++j) dst[j] = src[j] / sum;
+      src += cols;
+      dst += cols;
+    }
+  };
+  take(p.m.initial.data(), 1, p.m.initial.size());
+  for (auto& T : p.m.transitions) take(T.data(), T.rows(), T.cols());
+  take(p.m.emissions.data(), p.m.emissions.rows(), p.m.emissions.cols());
+  take(p.qA.data(), p.qA.rows(), p.qA.cols());
+}
+
+// One EM run accelerated by SQUAREM (Varadhan and Roland, "Simple and globally convergent methods
+// for accelerating the convergence of any EM algorithm", Scand. J. Stat. 35, 2008, scheme S3):
+// from theta0, two EM steps give theta1 = F(theta0), theta2 = F(theta1); with r = theta1 - theta0,
+// v = theta2 - theta1 - r and alpha = -|r| / |v| (at most -1), the extrapolated point is
+//   theta' = theta0 - 2 alpha r + alpha^2 v,
+// with alpha moved halfway towards -1 until theta' is a set of probability rows (alpha = -1 gives
+// theta2). theta' is kept only if its objective is at least that of theta1, otherwise theta2 is
+// taken: the objective never decreases. Plain EM stalls along directions that only the pilot
+// episodes inform, and a relative stopping rule then stops it early (tests/core/test_confounding);
+// the extrapolation moves along exactly those directions.
+// Iterations count E-steps. Convergence: one cycle improves the objective by at most
+// tolerance * |objective|.
+struct Run {
+  Params p;
+  double ll = 0.0, obj = -std::numeric_limits<double>::infinity();
   int iterations = 0;
   bool converged = false;
 };
 
-void iterate(Run& run, int budget, ForwardBackward& fb, ExpectedCounts& counts, const std::vector<DataView>& data,
-             const FitSettings& s) {
-  Matrix* qAp = run.qA.size() > 0 ? &run.qA : nullptr;
-  const int stop_at = std::min(s.max_iterations, run.iterations + budget);
-  while (!run.converged) {
-    counts.reset(run.m.states, run.m.actions, run.m.observations);
-    fb.load(run.m, qAp);
-    run.ll = expectation(fb, data, counts);  // likelihood of the current parameters
-    run.obj = run.ll + log_prior(run.m, qAp, s.prior);
-    if (run.iterations > 0 && run.obj - run.prev <= s.tolerance * std::abs(run.prev)) {
-      run.converged = true;
-      break;
+class Accelerated {
+ public:
+  Accelerated(ForwardBackward& fb, const std::vector<DataView>& data, const FitSettings& s) : fb_(fb), data_(data), s_(s) {}
+
+  void run(Run& run) {
+    Params& p0 = run.p;
+    evaluate(p0, c0_, run);
+    while (!run.converged && run.iterations < s_.max_iterations) {
+      Params p1 = p0;
+      step(c0_, p1);
+      Run r1;
+      evaluate(p1, c1_, r1);
+      ++run.iterations;
+      if (run.iterations >= s_.max_iterations) {  // no room for a whole cycle: keep the plain EM step
+        accept(run, p1, c1_, r1);
+        break;
+      }
+      Params p2 = p1;
+      step(c1_, p2);
+      pack(p0, x0_);
+      pack(p1, x1_);
+      pack(p2, x2_);
+      double rr = 0.0, vv = 0.0;
+      const std::size_t n = x0_.size();
+      r_.resize(n);
+      v_.resize(n);
+      for (std::size_t k = 0; k < n; ++k) {
+        r_[k] = x1_[k] - x0_[k];
+        v_[k] = x2_[k] - x1_[k] - r_[k];
+        rr += r_[k] * r_[k];
+        vv += v_[k] * v_[k];
+      }
+      double alpha = vv > 0.0 ? -std::sqrt(rr / vv) : -1.0;
+      Params next = p2;
+      while (alpha < -1.0) {
+        bool valid = true;
+        xn_.resize(n);
+        for (std::size_t k = 0; k < n && valid; ++k) {
+          xn_[k] = x0_[k] - 2.0 * alpha * r_[k] + alpha * alpha * v_[k];
+          valid = xn_[k] >= 0.0;
+        }
+        if (valid) {
+          unpack(xn_, next);
+          break;
+        }
+        alpha = 0.5 * (alpha - 1.0);
+        if (alpha > -1.01) alpha = -1.0;
+      }
+      Run rn;
+      evaluate(next, cn_, rn);
+      ++run.iterations;
+      if (alpha < -1.0 && !(rn.obj >= r1.obj)) {  // extrapolation did worse than one EM step
+        if (run.iterations >= s_.max_iterations) {
+          accept(run, p1, c1_, r1);
+          break;
+        }
+        next = std::move(p2);  // theta2, whose objective is at least theta1's
+        evaluate(next, cn_, rn);
+        ++run.iterations;
+      }
+      accept(run, next, cn_, rn);
     }
-    if (run.iterations >= stop_at) break;
-    run.prev = run.obj;
-    maximise(counts, s.prior, run.m, qAp);
-    ++run.iterations;
   }
-}
+
+ private:
+  // Makes `p` (evaluated into `c`, `r`) the current point of `run`.
+  void accept(Run& run, Params& p, ExpectedCounts& c, const Run& r) {
+    run.converged = r.obj - run.obj <= s_.tolerance * std::abs(run.obj);
+    run.p = std::move(p);
+    std::swap(c0_, c);
+    run.ll = r.ll;
+    run.obj = r.obj;
+  }
+  void evaluate(const Params& p, ExpectedCounts& c, Run& out) {
+    const Matrix* qAp = p.qA.size() > 0 ? &p.qA : nullptr;
+    c.reset(p.m.states, p.m.actions, p.m.observations);
+    fb_.load(p.m, qAp);
+    out.ll = expectation(fb_, data_, c);
+    out.obj = out.ll + log_prior(p.m, qAp, s_.prior);
+  }
+  void step(const ExpectedCounts& c, Params& p) { maximise(c, s_.prior, p.m, p.qA.size() > 0 ? &p.qA : nullptr); }
+
+  ForwardBackward& fb_;
+  const std::vector<DataView>& data_;
+  const FitSettings& s_;
+  ExpectedCounts c0_, c1_, cn_;
+  std::vector<double> x0_, x1_, x2_, r_, v_, xn_;
+};
 
 }  // namespace
 
@@ -117,42 +229,26 @@ FitResult fit(const std::vector<DataView>& data, bool decision_rule, const FitSe
   const int Z = s.latent_states;
   const Vector freq = observation_frequencies(data, shape.observations);
   ForwardBackward fb(Z, shape.actions, shape.observations, max_horizon(data));
-  ExpectedCounts counts;
-
-  // Screening: every random start runs `screening_iterations` EM steps ("small EM", Biernacki,
-  // Celeux and Govaert, Comput. Stat. Data Anal. 41, 2003, sec. 3.2).
-  // screening_iterations = 0 turns screening off: every start runs to convergence.
-  const bool screen = s.screening_iterations > 0;
-  std::vector<Run> runs(static_cast<std::size_t>(std::max(1, s.restarts)));
-  for (auto& run : runs) {
-    run.m = empty_latent(shape, Z);
-    run.qA = decision_rule ? Matrix(Z, shape.actions) : Matrix();
-    initialise(rng, freq, run.m, run.qA);
-    iterate(run, screen ? s.screening_iterations : s.max_iterations, fb, counts, data, s);
-  }
-  // The `finalists` best screened runs continue to convergence; the best final objective wins.
-  std::vector<std::size_t> order(runs.size());
-  for (std::size_t i = 0; i < order.size(); ++i) order[i] = i;
-  std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return runs[a].obj > runs[b].obj; });
-  const std::size_t finalists =
-      screen ? std::min<std::size_t>(runs.size(), static_cast<std::size_t>(std::max(1, s.finalists))) : runs.size();
+  Accelerated em(fb, data, s);
   FitResult best;
   best.objective = -std::numeric_limits<double>::infinity();
-  for (std::size_t k = 0; k < finalists; ++k) {
-    Run& run = runs[order[k]];
-    iterate(run, s.max_iterations, fb, counts, data, s);
+  for (int r = 0; r < std::max(1, s.restarts); ++r) {
+    Run run;
+    run.p.m = empty_latent(shape, Z);
+    run.p.qA = decision_rule ? Matrix(Z, shape.actions) : Matrix();
+    initialise(rng, freq, run.p.m, run.p.qA);
+    em.run(run);
+    best.restart_objectives.push_back(run.obj);
     if (run.obj > best.objective) {
       best.objective = run.obj;
       best.loglik = run.ll;
       best.iterations = run.iterations;
       best.converged = run.converged;
-      best.best_restart = static_cast<int>(order[k]);
+      best.best_restart = r;
+      best.model = std::move(run.p.m);
+      best.decision = std::move(run.p.qA);
     }
   }
-  for (const auto& run : runs) best.restart_objectives.push_back(run.obj);
-  Run& win = runs[static_cast<std::size_t>(best.best_restart)];
-  best.model = std::move(win.m);
-  best.decision = std::move(win.qA);
   return best;
 }
 

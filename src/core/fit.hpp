@@ -2,10 +2,9 @@
 // actions as inputs; Dempster, Laird and Rubin, JRSS B 39(1), 1977), with restarts
 // (design.md sec. 3). The objective is log p(data | q) + prior * sum log q (the log posterior
 // under a symmetric Dirichlet(prior + 1) on every row, up to a constant); EM never decreases it.
-// `restarts` random starts each run to convergence and the highest objective is kept. Optionally
-// (screening_iterations > 0) starts are screened by a few EM steps and only the `finalists` best
-// continue ("small EM"; Biernacki, Celeux and Govaert, Comput. Stat. Data Anal. 41, 2003): on
-// this model class it failed more often than full restarts (DEVELOPERS.md, bench_restarts).
+// EM is accelerated by SQUAREM (see fit.cpp). `restarts` random starts each run to convergence and
+// the highest objective is kept. (Screening many starts by a few EM steps, "small EM", failed more
+// often than full restarts on this model class: DEVELOPERS.md, bench_restarts.)
 #pragma once
 #include <vector>
 
@@ -21,10 +20,10 @@ struct FitResult {
   Matrix decision;         // qA (Z x A) for a regime-aware fit, empty otherwise
   double loglik = 0.0;     // training log-likelihood of the kept restart
   double objective = 0.0;  // loglik + log prior
-  int iterations = 0;      // EM iterations of the kept restart
+  int iterations = 0;      // E-steps (EM map evaluations) of the kept restart
   bool converged = false;  // relative objective change fell below the tolerance
   int best_restart = 0;                    // index of the winning random start
-  std::vector<double> restart_objectives;  // objective of every start when it stopped (screened or final)
+  std::vector<double> restart_objectives;  // final objective of every start
 };
 
 // Fits Z = settings.latent_states latent values to `data` (episodes of the pilot regime, and of

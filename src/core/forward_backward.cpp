@@ -37,9 +37,19 @@ void ForwardBackward::load(const Pomdp& m, const Matrix* decision) {
   }
 }
 
+namespace {
+
+// Fixed-size Eigen types when the latent size is known at compile time (ZC > 0): Eigen then
+// unrolls and vectorises the small products explicitly.
+template <int ZC>
+using ZVec = Eigen::Matrix<double, ZC ? ZC : Eigen::Dynamic, 1>;
+template <int ZC>
+using ZMat = Eigen::Matrix<double, ZC ? ZC : Eigen::Dynamic, ZC ? ZC : Eigen::Dynamic, Eigen::RowMajor>;
+
+}  // namespace
+
 // Forward pass with scaling; leaves alpha_t (normalised) in alpha_ and c_t in scale_.
-// ZC > 0 fixes the latent size at compile time (unrolled, vectorised loops); ZC = 0 is the
-// general case.
+// ZC > 0 fixes the latent size at compile time; ZC = 0 is the general case.
 template <int ZC>
 double ForwardBackward::forward(const std::int32_t* o, const std::int32_t* a, int H, bool logged) {
   const int Z = ZC > 0 ? ZC : Z_;
@@ -52,46 +62,45 @@ double ForwardBackward::forward(const std::int32_t* o, const std::int32_t* a, in
     al[z] = v;
     c += v;
   }
-  double ll = std::log(c);
+  // log p = sum_t log c_t, taken as the log of a running product (one log per episode unless the
+  // product nears the bottom of the double range).
+  double ll = 0.0, product = c;
   scale_[0] = c;
   for (int z = 0; z < Z; ++z) al[z] /= c;
   for (int t = 0; t < H; ++t) {
-    const double* prev = al + static_cast<std::ptrdiff_t>(t) * Z;
-    double* cur = al + static_cast<std::ptrdiff_t>(t + 1) * Z;
-    const double* M = M_.data() + (static_cast<std::size_t>(a[t]) * O_ + o[t + 1]) * Z * Z;
-    for (int y = 0; y < Z; ++y) cur[y] = 0.0;
-    for (int z = 0; z < Z; ++z) {
-      const double p = prev[z];
-      const double* row = M + static_cast<std::ptrdiff_t>(z) * Z;
-      for (int y = 0; y < Z; ++y) cur[y] += p * row[y];
-    }
+    Eigen::Map<const ZVec<ZC>> prev(al + static_cast<std::ptrdiff_t>(t) * Z, Z);
+    Eigen::Map<ZVec<ZC>> cur(al + static_cast<std::ptrdiff_t>(t + 1) * Z, Z);
+    Eigen::Map<const ZMat<ZC>> M(M_.data() + (static_cast<std::size_t>(a[t]) * O_ + o[t + 1]) * Z * Z, Z, Z);
+    cur.noalias() = M.transpose().lazyProduct(prev);  // cur(z') = sum_z prev(z) M(z, z')
     if (w && t + 1 < H) {
-      const double* qa = qA_.data() + a[t + 1];
-      for (int y = 0; y < Z; ++y) cur[y] *= qa[static_cast<std::ptrdiff_t>(y) * A_];
+      Eigen::Map<const ZVec<ZC>, 0, Eigen::InnerStride<>> qa(qA_.data() + a[t + 1], Z, Eigen::InnerStride<>(A_));
+      cur.array() *= qa.array();
     }
-    c = 0.0;
-    for (int y = 0; y < Z; ++y) c += cur[y];
+    c = cur.sum();
     scale_[static_cast<std::size_t>(t + 1)] = c;
-    ll += std::log(c);
-    const double inv = 1.0 / c;
-    for (int y = 0; y < Z; ++y) cur[y] *= inv;
+    product *= c;
+    if (product < 1e-250) {
+      ll += std::log(product);
+      product = 1.0;
+    }
+    cur *= 1.0 / c;
   }
-  return ll;
+  return ll + std::log(product);
 }
 
 // Backward pass and expected counts. With v(z') = w_{t+1}(z') beta_{t+1}(z') / c_{t+1}:
-//   xi_t(z, z') = alpha_t(z) M(z, z') v(z'), so we accumulate the outer product alpha_t v^T per
-//   (a_t, o_{t+1}) and multiply by M once per E-step (see accumulate()).
+//   beta_t = M v  and  xi_t(z, z') = alpha_t(z) M(z, z') v(z'), so we accumulate the outer
+//   product alpha_t v^T per (a_t, o_{t+1}) and multiply by M once per E-step (see accumulate()).
 template <int ZC>
 void ForwardBackward::backward_and_count(const std::int32_t* o, const std::int32_t* a, int H, bool logged,
                                          ExpectedCounts& c) {
   const int Z = ZC > 0 ? ZC : Z_;
   const bool w = logged && has_decision_;
   const double* al = alpha_.data();
-  double* beta = beta_.data();
-  double* v = next_.data();
-  for (int z = 0; z < Z; ++z) beta[z] = 1.0;
-  // gamma_H
+  Eigen::Map<ZVec<ZC>> beta(beta_.data(), Z);
+  Eigen::Map<ZVec<ZC>> v(next_.data(), Z);
+  beta.setOnes();
+  // gamma_H = alpha_H
   {
     const double* aH = al + static_cast<std::ptrdiff_t>(H) * Z;
     double* E = c.emissions.data();
@@ -100,26 +109,17 @@ void ForwardBackward::backward_and_count(const std::int32_t* o, const std::int32
   for (int t = H - 1; t >= 0; --t) {
     const double inv = 1.0 / scale_[static_cast<std::size_t>(t + 1)];
     if (w && t + 1 < H) {
-      const double* qa = qA_.data() + a[t + 1];
-      for (int y = 0; y < Z; ++y) v[y] = qa[static_cast<std::ptrdiff_t>(y) * A_] * beta[y] * inv;
+      Eigen::Map<const ZVec<ZC>, 0, Eigen::InnerStride<>> qa(qA_.data() + a[t + 1], Z, Eigen::InnerStride<>(A_));
+      v = (qa.array() * beta.array() * inv).matrix();
     } else {
-      for (int y = 0; y < Z; ++y) v[y] = beta[y] * inv;
+      v = beta * inv;
     }
     const std::size_t block = (static_cast<std::size_t>(a[t]) * O_ + o[t + 1]) * Z * Z;
-    const double* M = M_.data() + block;
-    double* X = outer_.data() + block;
-    const double* at = al + static_cast<std::ptrdiff_t>(t) * Z;
-    for (int z = 0; z < Z; ++z) {
-      const double* row = M + static_cast<std::ptrdiff_t>(z) * Z;
-      double* xrow = X + static_cast<std::ptrdiff_t>(z) * Z;
-      const double az = at[z];
-      double s = 0.0;
-      for (int y = 0; y < Z; ++y) {
-        s += row[y] * v[y];
-        xrow[y] += az * v[y];
-      }
-      beta[z] = s;  // beta_t(z)
-    }
+    Eigen::Map<const ZMat<ZC>> M(M_.data() + block, Z, Z);
+    Eigen::Map<ZMat<ZC>> X(outer_.data() + block, Z, Z);
+    Eigen::Map<const ZVec<ZC>> at(al + static_cast<std::ptrdiff_t>(t) * Z, Z);
+    beta.noalias() = M.lazyProduct(v);  // beta_t
+    X.noalias() += at * v.transpose();  // X += alpha_t v^T
     // gamma_t(z) = alpha_t(z) beta_t(z)
     double* E = c.emissions.data();
     for (int z = 0; z < Z; ++z) {
@@ -129,8 +129,6 @@ void ForwardBackward::backward_and_count(const std::int32_t* o, const std::int32
       if (t == 0) c.initial(z) += g;
     }
   }
-  if (H == 0)
-    for (int z = 0; z < Z; ++z) c.initial(z) += al[z];
 }
 
 template <int ZC>

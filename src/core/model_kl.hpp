@@ -4,7 +4,8 @@
 // predictive computed exactly by belief filtering in its own model (belief.hpp):
 //   pred_0 = p0^T E,   pred_t = (b_{t-1}^T T[a_{t-1}]) E,   b_t = filter(b_{t-1}, a_{t-1}, o_t).
 // The true predictives and their negative entropies are computed once per replicate
-// (EvaluationSet) and shared by every strategy and budget (common random numbers).
+// (EvaluationSet) and shared by every strategy and budget (common random numbers). The sum is
+// taken term by term, p (log p - log q), so that a perfect model gives exactly 0.
 #pragma once
 #include <vector>
 
@@ -19,8 +20,8 @@ void predictives(const Pomdp& model, const Dataset& histories, std::vector<doubl
 
 struct EvaluationSet {
   Dataset histories;
-  std::vector<double> truth;  // true predictives, layout as in predictives()
-  double negentropy = 0.0;    // sum over histories and t of sum_o p log p
+  std::vector<double> truth;      // true predictives, layout as in predictives()
+  std::vector<double> log_truth;  // log of each (0 where the probability is 0)
 };
 
 EvaluationSet make_evaluation_set(const Pomdp& truth, Dataset histories);

@@ -38,10 +38,8 @@ struct LoggingSettings {
 
 struct FitSettings {
   int latent_states = 4;
-  int restarts = 3;              // random starts (see fit.hpp)
-  int screening_iterations = 0;  // 0: every start runs to convergence; k > 0: screen starts by k EM steps
-  int finalists = 1;             // with screening: screened starts that continue to convergence
-  int max_iterations = 200;      // cap on EM steps of one start
+  int restarts = 3;          // random starts, each run to convergence (see fit.hpp)
+  int max_iterations = 200;  // cap on E-steps of one start
   double tolerance = 1e-6;
   double prior = 0.1;
 };

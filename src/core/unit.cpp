@@ -7,10 +7,7 @@
 #include "core/dataset.hpp"
 #include "core/fit.hpp"
 #include "core/model_kl.hpp"
-#if __has_include("core/return_gap.hpp")
 #include "core/return_gap.hpp"
-#define DOBUDGET_HAVE_RETURN_GAP 1
-#endif
 #include "core/synthetic.hpp"
 
 namespace dobudget {
@@ -55,11 +52,9 @@ DrawContext make_draw_context(const Study& study, int scenario, int draw) {
   const StreamKey key{study.seed, static_cast<std::uint64_t>(scenario), static_cast<std::uint64_t>(draw), 0};
   DrawContext c;
   c.environment = make_environment(s, key);
-#ifdef DOBUDGET_HAVE_RETURN_GAP
   for (Measure m : s.measures)
     if (m == Measure::return_gap)
       c.return_gap = std::make_shared<const ReturnGapReference>(prepare_return_gap(c.environment.model, s.planner, key));
-#endif
   return c;
 }
 
@@ -77,6 +72,8 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
 
   bool want_kl = false, want_gap = false;
   for (Measure m : s.measures) (m == Measure::model_kl ? want_kl : want_gap) = true;
+  std::vector<double> star_returns;  // the true plan's rollout returns, shared by every fit of the replicate
+  if (want_gap) star_returns = true_plan_returns(env.model, *ctx.return_gap, s.planner, key);
   EvaluationSet eval;
   if (want_kl) {
     Engine eval_rng = make_engine(key, Purpose::evaluation);
@@ -107,9 +104,7 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
           c.fit = fit(views, k.strategy == Strategy::regime_aware, s.fit, env.model, fit_rng);
           c.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
           if (want_kl) c.kl = model_kl(eval, c.fit.model);
-#ifdef DOBUDGET_HAVE_RETURN_GAP
-          if (want_gap) c.gap = return_gap(env.model, c.fit.model, *ctx.return_gap, s.planner, key).gap;
-#endif
+          if (want_gap) c.gap = return_gap(env.model, c.fit.model, *ctx.return_gap, s.planner, key, &star_returns).gap;
           it = cells.emplace(k, std::move(c)).first;
         }
         const Cell& c = it->second;

@@ -1,0 +1,248 @@
+// answer.csv, answer.md and the terminal table; see answer_table.hpp.
+#include "io/answer_table.hpp"
+
+#include "io/atomic_file.hpp"
+
+#include "io/csv.hpp"
+
+#include <fmt/format.h>
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <fstream>
+#include <stdexcept>
+#include <system_error>
+#include <tuple>
+
+namespace dobudget::io {
+
+namespace {
+
+// ---- CSV cells -------------------------------------------------------------------------------
+
+// io/csv.hpp's shortest round-trip number, with NaN (a missing value here) as an empty cell.
+std::string cell(double x) { return std::isnan(x) ? std::string() : csv_number(x); }
+std::string cell(const std::optional<double>& x) { return x ? cell(*x) : std::string(); }
+
+// ---- human-readable cells (answer.md and the terminal) ---------------------------------------
+
+std::string human_episodes(double x) {  // whole episodes, rounded up
+  if (std::isnan(x)) return "-";
+  if (std::isinf(x)) return x > 0 ? "inf" : "-inf";
+  const double r = std::ceil(x - 1e-9 * std::abs(x));
+  if (std::abs(r) >= 1e7) return fmt::format("{:.3g}", r);
+  return fmt::format("{:.0f}", r);
+}
+
+std::string human_signed_episodes(const std::optional<double>& x) {  // saved episodes, rounded
+  if (!x) return "-";
+  if (std::isinf(*x)) return *x > 0 ? "inf" : "-inf";
+  if (std::abs(*x) >= 1e7) return fmt::format("{:.3g}", *x);
+  const double r = std::round(*x);
+  return fmt::format("{:.0f}", r == 0.0 ? 0.0 : r);  // no "-0"
+}
+
+std::string human_value(const std::optional<double>& x, const char* spec = "{:.4g}") {
+  if (!x || std::isnan(*x)) return "-";
+  if (std::isinf(*x)) return *x > 0 ? "inf" : "-inf";
+  return fmt::format(fmt::runtime(spec), *x);
+}
+
+std::string human_needed(const AnswerRow& r) {
+  const std::string n = human_episodes(r.needed_pilot);
+  if (r.status == AnswerStatus::met_at_smallest) return "<= " + n;
+  if (r.status == AnswerStatus::not_reached) return "> largest budget";
+  return n;
+}
+
+std::string human_interval(const AnswerRow& r) {
+  if (std::isnan(r.low) && std::isnan(r.high)) return "-";
+  return fmt::format("[{}, {}]", human_episodes(r.low), human_episodes(r.high));
+}
+
+std::string percent(double x) { return fmt::format("{:g}%", std::round(x * 1000.0) / 10.0); }
+
+std::string criterion_sentence(const AnswerRow& r) {
+  if (r.criterion == Criterion::mean)
+    return fmt::format("Criterion `mean`: the mean {} across (environment draw, replicate) pairs is at most {}.",
+                       name(r.measure), r.target);
+  return fmt::format(
+      "Criterion `assurance`: at least {} of (environment draw, replicate) pairs have {} at most {}.",
+      percent(r.assurance), name(r.measure), r.target);
+}
+
+// Rows of one table in answer.md: same scenario and query.
+using GroupKey = std::tuple<int, Measure, double, double, Criterion, double>;
+
+GroupKey group_key(const AnswerRow& r) {
+  // NaN assurance (mean criterion) would never compare equal: use 0 in the key.
+  return {r.scenario, r.measure, r.target, std::isnan(r.assurance) ? 0.0 : r.assurance, r.criterion, r.interval};
+}
+
+}  // namespace
+
+std::string_view answer_csv_header() {
+  return "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
+         "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion";
+}
+
+std::string answer_csv_line(const AnswerRow& r) {
+  return fmt::format("{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}", r.scenario, name(r.measure), cell(r.target), cell(r.assurance),
+                     name(r.strategy), r.logged, cell(r.needed_pilot), cell(r.low), cell(r.high), name(r.status),
+                     cell(r.floor), cell(r.saved_vs_pilot_only), cell(r.exchange_rate), r.pairs, name(r.criterion));
+}
+
+void write_answer_csv(const std::filesystem::path& path, const std::vector<AnswerRow>& rows) {
+  std::string s(answer_csv_header());
+  s += '\n';
+  for (const auto& r : rows) {
+    s += answer_csv_line(r);
+    s += '\n';
+  }
+  write_file_atomically(path, s);
+}
+
+std::string format_answer_md(const std::string& study_name, const std::vector<std::string>& scenario_labels,
+                             const std::vector<AnswerRow>& rows) {
+  std::string s = fmt::format("# Pilot episodes needed: {}\n\n", study_name);
+  s +=
+      "How many pilot (interventional) episodes each way of using the data needs so that the fitted model "
+      "meets the target, for each logged budget. Budgets are in episodes; needed values are rounded up to "
+      "whole episodes here (answer.csv keeps the unrounded values).\n";
+  if (rows.empty()) s += "\nNo answers: no run records with values for the requested measures.\n";
+
+  // Groups in order of first appearance.
+  std::vector<GroupKey> keys;
+  for (const auto& r : rows)
+    if (std::find(keys.begin(), keys.end(), group_key(r)) == keys.end()) keys.push_back(group_key(r));
+  int current_scenario = -1;
+  bool any_extrapolated = false;
+  for (const auto& key : keys) {
+    const int sc = std::get<0>(key);
+    const AnswerRow* first = nullptr;
+    for (const auto& r : rows)
+      if (group_key(r) == key) {
+        first = &r;
+        break;
+      }
+    if (sc != current_scenario || current_scenario == -1) {
+      current_scenario = sc;
+      const bool labelled = sc >= 0 && static_cast<std::size_t>(sc) < scenario_labels.size() &&
+                            !scenario_labels[static_cast<std::size_t>(sc)].empty();
+      s += labelled ? fmt::format("\n## Scenario {}: {}\n", sc, scenario_labels[static_cast<std::size_t>(sc)])
+                    : fmt::format("\n## Scenario {}\n", sc);
+    }
+    s += fmt::format("\n### {} at most {} ({})\n\n{}\n\n", name(first->measure), first->target,
+                     first->criterion == Criterion::mean ? std::string("mean criterion")
+                                                         : "assurance " + percent(first->assurance),
+                     criterion_sentence(*first));
+    s += fmt::format(
+        "| strategy | logged | needed pilot | {} interval | status | floor | saved vs pilot-only | "
+        "saved per logged episode | pairs |\n",
+        percent(first->interval));
+    s += "|---|---:|---:|---|---|---:|---:|---:|---:|\n";
+    for (const auto& r : rows) {
+      if (group_key(r) != key) continue;
+      any_extrapolated = any_extrapolated || r.status == AnswerStatus::extrapolated;
+      s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.strategy), r.logged,
+                       human_needed(r), human_interval(r), name(r.status), human_value(r.floor),
+                       human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"),
+                       r.pairs);
+    }
+  }
+
+  s += R"(
+## How to read this
+
+* **needed pilot**: the smallest pilot budget at which the criterion holds. Under `assurance`, the
+  fraction of (environment draw, replicate) pairs whose measure is at most the target is made
+  non-decreasing in the budget (isotonic regression) and the budget where it reaches the assurance
+  is interpolated linearly in log(budget) between the simulated budgets. Under `mean`, the mean
+  measure across pairs is made non-increasing and the budget where it reaches the target is
+  interpolated the same way.
+* **status**:
+  * `met-at-smallest`: the criterion already holds at the smallest simulated budget. The value
+    shown (`<= n`) is an upper bound: fewer pilot episodes may do, but the simulation cannot tell.
+  * `reached`: the criterion is met between two simulated budgets (interpolated).
+  * `extrapolated`: even the largest simulated budget falls short; a learning curve
+    e(n) = c + a n^(-b) fitted to the measure across budgets (to its assurance-quantile under
+    `assurance`, to its mean under `mean`) has a floor c below the target, and the budget where the
+    curve meets the target is shown. It lies beyond the simulated range: treat it as a rough guide
+    and simulate larger budgets to confirm.
+  * `unreachable`: the fitted floor c is at or above the target: more pilot episodes of this kind
+    are not expected to get there (needed = inf). The floor is shown.
+  * `not-reached`: the largest budget falls short and too few budgets have data to fit a curve.
+* **interval**: percentile bootstrap interval over resampled (environment draw, replicate) pairs;
+  each resample recomputes the whole answer. Resamples that never reach the target count as
+  infinite, so an end of `inf` means that a sizeable share of resamples did not reach it. The
+  interval reflects the spread between environment draws and replicates only, not the error of
+  interpolating between the simulated budgets (which can dominate on a coarse grid).
+* **floor**: the fitted c, shown whenever a learning curve was fitted.
+* **saved vs pilot-only**: pilot episodes saved by using the logged episodes this way, against
+  pilot-only (which ignores logged data); negative when the strategy needs more. **saved per logged
+  episode** is the exchange rate, saved / logged (not defined without logged episodes).
+* **pairs**: the (environment draw, replicate) pairs with a value of the measure. Pairs without one
+  (e.g. `return_gap` when planning cannot beat the uniform policy by a meaningful margin) are left
+  out of every fraction and mean.
+)";
+  if (any_extrapolated)
+    s += "\nSome answers above are extrapolated beyond the simulated budgets; see `extrapolated`.\n";
+  s += R"(
+## Caution
+
+This is a simulation under stated assumptions (the synthetic family or the given model, the logging model, the pilot policy); it is no substitute for a qualified statistician, for ethics review, or for local regulations on trials.
+)";
+  return s;
+}
+
+void write_answer_md(const std::filesystem::path& path, const std::string& study_name,
+                     const std::vector<std::string>& scenario_labels, const std::vector<AnswerRow>& rows) {
+  write_file_atomically(path, format_answer_md(study_name, scenario_labels, rows));
+}
+
+std::string format_answer_table(const std::vector<AnswerRow>& rows) {
+  const std::vector<std::string> header{"scenario", "measure", "target", "criterion", "strategy", "logged",
+                                        "needed",   "interval", "status", "saved",     "per logged", "pairs"};
+  // Right-aligned (numeric) columns.
+  const std::vector<bool> right{true, false, true, false, false, true, true, false, false, true, true, true};
+  std::vector<std::vector<std::string>> cells;
+  cells.push_back(header);
+  for (const auto& r : rows) {
+    const std::string crit = r.criterion == Criterion::mean ? std::string("mean")
+                                                            : fmt::format("assurance {}", r.assurance);
+    cells.push_back({std::to_string(r.scenario), std::string(name(r.measure)), fmt::format("{}", r.target), crit,
+                     std::string(name(r.strategy)), std::to_string(r.logged), human_needed(r), human_interval(r),
+                     std::string(name(r.status)), human_signed_episodes(r.saved_vs_pilot_only),
+                     human_value(r.exchange_rate, "{:.3g}"), std::to_string(r.pairs)});
+  }
+  std::vector<std::size_t> width(header.size(), 0);
+  for (const auto& line : cells)
+    for (std::size_t c = 0; c < line.size(); ++c) width[c] = std::max(width[c], line[c].size());
+  std::string s;
+  for (const auto& line : cells) {
+    std::string text;
+    for (std::size_t c = 0; c < line.size(); ++c) {
+      if (c > 0) text += "  ";
+      const std::string pad(width[c] - line[c].size(), ' ');
+      text += right[c] ? pad + line[c] : line[c] + pad;
+    }
+    while (!text.empty() && text.back() == ' ') text.pop_back();
+    s += text;
+    s += '\n';
+  }
+  return s;
+}
+
+}  // namespace dobudget::io
+
+namespace dobudget::io {
+
+void write_answer_files(const std::filesystem::path& dir, const Study& study, const std::vector<AnswerRow>& rows) {
+  std::vector<std::string> labels;
+  for (const auto& sc : study.scenarios) labels.push_back(sc.label);
+  write_answer_csv(dir / "answer.csv", rows);
+  write_answer_md(dir / "answer.md", study.name, labels, rows);
+}
+
+}  // namespace dobudget::io

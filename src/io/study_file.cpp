@@ -1,0 +1,582 @@
+#include "io/study_file.hpp"
+
+#include <fmt/format.h>
+#include <yaml-cpp/yaml.h>
+
+#include <algorithm>
+#include <map>
+#include <optional>
+#include <set>
+#include <stdexcept>
+#include <string_view>
+#include <utility>
+#include <vector>
+
+#include "io/model_file.hpp"
+
+namespace dobudget::io {
+namespace {
+
+namespace fs = std::filesystem;
+using input::Entry;
+using input::Located;
+using input::Reader;
+
+// ---- Schema -------------------------------------------------------------------------------------
+
+const std::vector<std::string> top_keys{"name",       "seed",       "environment", "logging", "pilot",
+                                        "budgets",    "replicates", "strategies",  "measures", "fit",
+                                        "evaluation", "planner",    "targets",     "assurance", "sweep"};
+const std::vector<std::string> environment_keys{"states",   "actions", "observations",           "horizon",
+                                                "discount", "draws",   "dynamics_concentration", "observation_noise",
+                                                "file",     "model"};
+const std::vector<std::string> family_keys{"states", "actions", "observations", "dynamics_concentration",
+                                           "observation_noise"};
+const std::vector<std::string> logging_keys{"privilege", "temperature", "q_discount"};
+const std::vector<std::string> pilot_keys{"policy"};
+const std::vector<std::string> budget_keys{"logged", "pilot"};
+const std::vector<std::string> fit_keys{"latent_states", "restarts", "max_iterations", "tolerance", "prior"};
+const std::vector<std::string> evaluation_keys{"trajectories", "policy"};
+const std::vector<std::string> planner_keys{"belief_points", "seed", "exact_histories", "rollouts"};
+
+std::vector<std::string> strategy_names() {
+  std::vector<std::string> out;
+  for (Strategy s : all_strategies) out.emplace_back(name(s));
+  return out;
+}
+
+std::vector<std::string> measure_names() {
+  std::vector<std::string> out;
+  for (Measure m : all_measures) out.emplace_back(name(m));
+  return out;
+}
+
+// How a swept value is read (and written canonically) before it is checked in place.
+enum class Kind { whole, seed, number, text };
+
+const std::vector<std::pair<std::string, Kind>> sweepable{
+    {"environment.states", Kind::whole},
+    {"environment.actions", Kind::whole},
+    {"environment.observations", Kind::whole},
+    {"environment.horizon", Kind::whole},
+    {"environment.discount", Kind::number},
+    {"environment.draws", Kind::whole},
+    {"environment.dynamics_concentration", Kind::number},
+    {"environment.observation_noise", Kind::number},
+    {"logging.privilege", Kind::number},
+    {"logging.temperature", Kind::number},
+    {"logging.q_discount", Kind::number},
+    {"pilot.policy", Kind::text},
+    {"replicates", Kind::whole},
+    {"fit.latent_states", Kind::whole},
+    {"fit.restarts", Kind::whole},
+    {"fit.max_iterations", Kind::whole},
+    {"fit.tolerance", Kind::number},
+    {"fit.prior", Kind::number},
+    {"evaluation.trajectories", Kind::whole},
+    {"evaluation.policy", Kind::text},
+    {"planner.belief_points", Kind::whole},
+    {"planner.seed", Kind::seed},
+    {"planner.exact_histories", Kind::whole},
+    {"planner.rollouts", Kind::whole},
+    {"targets.model_kl", Kind::number},
+    {"targets.return_gap", Kind::number},
+    {"assurance", Kind::number},
+};
+
+std::vector<std::string> sweepable_paths() {
+  std::vector<std::string> out;
+  for (const auto& [path, kind] : sweepable) out.push_back(path);
+  return out;
+}
+
+// Keys that exist but cannot be swept, with the reason given to the user.
+std::vector<std::pair<std::string, std::string>> sweep_refusals() {
+  std::vector<std::pair<std::string, std::string>> out;
+  for (const char* k : {"name", "seed"})
+    out.emplace_back(k, "is a setting of the whole study, not of a scenario, and cannot be swept");
+  out.emplace_back("environment.file", "cannot be swept: a study has one model file (write one study per model)");
+  out.emplace_back("environment.model", "cannot be swept: it is a mapping, and a study has one model");
+  for (const char* k : {"budgets.logged", "budgets.pilot", "strategies", "measures"})
+    out.emplace_back(k, "is a list, and only single-valued keys can be swept (every scenario uses the whole list)");
+  const std::pair<const char*, const char*> sections[] = {
+      {"environment", "environment.observation_noise"}, {"logging", "logging.privilege"},
+      {"pilot", "pilot.policy"},         {"fit", "fit.prior"},
+      {"evaluation", "evaluation.trajectories"},        {"planner", "planner.belief_points"},
+      {"targets", "targets.model_kl"}};
+  for (const auto& [section, example] : sections)
+    out.emplace_back(section, fmt::format("is a section; sweep one of its single-valued keys instead, e.g. {}", example));
+  out.emplace_back("budgets", "is a section of lists, and lists cannot be swept (every scenario uses the whole list)");
+  out.emplace_back("sweep", "cannot be swept");
+  return out;
+}
+
+Kind kind_of(const std::string& path) {
+  for (const auto& [p, kind] : sweepable)
+    if (p == path) return kind;
+  throw std::logic_error("not a sweepable key: " + path);
+}
+
+// Allowed values of a real-valued setting.
+struct Range {
+  const char* text;
+  bool (*ok)(double);
+};
+const Range unit_interval{"in [0, 1]", [](double x) { return x >= 0.0 && x <= 1.0; }};
+const Range positive{"greater than 0", [](double x) { return x > 0.0; }};
+const Range non_negative{"at least 0", [](double x) { return x >= 0.0; }};
+const Range discount_range{"in (0, 1]", [](double x) { return x > 0.0 && x <= 1.0; }};
+const Range below_one{"in [0, 1)", [](double x) { return x >= 0.0 && x < 1.0; }};
+const Range open_unit{"in (0, 1)", [](double x) { return x > 0.0 && x < 1.0; }};
+
+std::string number_text(double x) { return fmt::format("{}", x); }
+
+// ---- Reading ------------------------------------------------------------------------------------
+
+// The checked entries of one mapping of the study ("" for the top level); absent sections are
+// empty, so that swept keys of an absent section still apply.
+struct Section {
+  std::string path;
+  std::vector<Entry> entries;
+
+  const Located* find(std::string_view name) const {
+    for (const Entry& e : entries)
+      if (e.name == name) return &e.value;
+    return nullptr;
+  }
+};
+
+struct SweepAxis {
+  std::string path;
+  std::vector<Located> values;
+  std::vector<std::string> canonical;
+};
+
+class StudyParser {
+ public:
+  explicit StudyParser(const fs::path& file) : in_(file.string()), base_dir_(file.parent_path()) {}
+
+  Study parse(const YAML::Node& node) {
+    const Located root{node, "", input::line_of(node)};
+    if (node.IsDefined() && !node.IsNull() && !node.IsMap())
+      in_.fail(root, "expected a study: a mapping of 'key: value' entries, got " + input::describe(node));
+    const Section top{"", in_.entries(root, top_keys)};
+
+    Study study;
+    if (const Located* v = top.find("name")) {
+      study.name = in_.text(*v);
+      if (study.name.empty()) in_.fail(*v, "must not be empty");
+    }
+    if (const Located* v = top.find("seed")) study.seed = in_.unsigned_whole(*v);
+
+    const std::vector<SweepAxis> axes = sweep(top);
+    std::size_t total = 1;
+    for (const SweepAxis& a : axes) total *= a.values.size();
+    std::vector<std::size_t> digit(axes.size(), 0);
+    for (std::size_t index = 0; index < total; ++index) {
+      Scenario scenario;
+      scenario.index = static_cast<int>(index);
+      overrides_.clear();
+      for (std::size_t k = 0; k < axes.size(); ++k) {
+        overrides_.emplace(axes[k].path, axes[k].values[digit[k]]);
+        scenario.assignments.emplace_back(axes[k].path, axes[k].canonical[digit[k]]);
+        scenario.label += (k ? ", " : "") + axes[k].path + "=" + axes[k].canonical[digit[k]];
+      }
+      scenario.settings = settings(top);
+      study.scenarios.push_back(std::move(scenario));
+      for (std::size_t k = axes.size(); k-- > 0;) {  // the last key varies fastest
+        if (++digit[k] < axes[k].values.size()) break;
+        digit[k] = 0;
+      }
+    }
+    return study;
+  }
+
+ private:
+  Section section(const Section& top, std::string_view name, const std::vector<std::string>& keys) const {
+    if (const Located* v = top.find(name)) return Section{v->key, in_.entries(*v, keys)};
+    return Section{std::string(name), {}};
+  }
+
+  // The value of a key of a section in the current scenario: its sweep value, if swept.
+  std::optional<Located> get(const Section& s, std::string_view name) const {
+    if (auto it = overrides_.find(input::child_key(s.path, name)); it != overrides_.end()) return it->second;
+    if (const Located* v = s.find(name)) return *v;
+    return std::nullopt;
+  }
+
+  int whole(const Section& s, std::string_view name, int fallback, int min) const {
+    const std::optional<Located> v = get(s, name);
+    return v ? in_.whole_int(*v, min) : fallback;
+  }
+
+  double number(const Section& s, std::string_view name, double fallback, const Range& range) const {
+    const std::optional<Located> v = get(s, name);
+    if (!v) return fallback;
+    const double x = in_.number(*v);
+    if (!range.ok(x)) in_.fail(*v, fmt::format("must be {}, got {}", range.text, x));
+    return x;
+  }
+
+  void uniform_policy(const Section& s) const {
+    if (const std::optional<Located> v = get(s, "policy")) {
+      const std::string p = in_.text(*v);
+      if (p != "uniform") in_.fail(*v, fmt::format("only 'uniform' is supported for now, got '{}'", p));
+    }
+  }
+
+  ScenarioSettings settings(const Section& top) {
+    ScenarioSettings s;
+    s.environment = environment(top);
+
+    const Section logging = section(top, "logging", logging_keys);
+    s.logging.privilege = number(logging, "privilege", s.logging.privilege, unit_interval);
+    s.logging.temperature = number(logging, "temperature", s.logging.temperature, positive);
+    s.logging.q_discount = number(logging, "q_discount", s.logging.q_discount, below_one);
+
+    uniform_policy(section(top, "pilot", pilot_keys));
+
+    const Section budgets = section(top, "budgets", budget_keys);
+    s.logged_budgets = budget_list(budgets, "logged", s.logged_budgets, 0);
+    s.pilot_budgets = budget_list(budgets, "pilot", s.pilot_budgets, 1);
+
+    s.replicates = whole(top, "replicates", s.replicates, 1);
+    s.strategies = name_list(top, "strategies", "strategy", s.strategies, strategy_names(), parse_strategy);
+    s.measures = name_list(top, "measures", "measure", s.measures, measure_names(), parse_measure);
+
+    const Section fit = section(top, "fit", fit_keys);
+    const int states = s.environment.given ? s.environment.given->model.states : s.environment.family.states;
+    s.fit.latent_states = whole(fit, "latent_states", states, 1);
+    s.fit.restarts = whole(fit, "restarts", s.fit.restarts, 1);
+    s.fit.max_iterations = whole(fit, "max_iterations", s.fit.max_iterations, 1);
+    s.fit.tolerance = number(fit, "tolerance", s.fit.tolerance, positive);
+    s.fit.prior = number(fit, "prior", s.fit.prior, non_negative);
+
+    const Section evaluation = section(top, "evaluation", evaluation_keys);
+    s.evaluation.trajectories = whole(evaluation, "trajectories", s.evaluation.trajectories, 1);
+    uniform_policy(evaluation);
+
+    const Section planner = section(top, "planner", planner_keys);
+    s.planner.belief_points = whole(planner, "belief_points", s.planner.belief_points, 1);
+    if (const std::optional<Located> v = get(planner, "seed")) s.planner.seed = in_.unsigned_whole(*v);
+    s.planner.exact_histories = whole(planner, "exact_histories", s.planner.exact_histories, 0);
+    s.planner.rollouts = whole(planner, "rollouts", s.planner.rollouts, 1);
+
+    s.targets = targets(top, s.measures);
+    s.assurance = number(top, "assurance", s.assurance, open_unit);
+    return s;
+  }
+
+  EnvironmentSettings environment(const Section& top) {
+    const Section env = section(top, "environment", environment_keys);
+    EnvironmentSettings e;
+    e.horizon = whole(env, "horizon", e.horizon, 1);
+    e.discount = number(env, "discount", e.discount, discount_range);
+    const std::optional<Located> file = get(env, "file");
+    const std::optional<Located> model = get(env, "model");
+    if (!file && !model) {
+      e.family.states = whole(env, "states", e.family.states, 1);
+      e.family.actions = whole(env, "actions", e.family.actions, 1);
+      e.family.observations = whole(env, "observations", e.family.observations, 1);
+      e.family.dynamics_concentration =
+          number(env, "dynamics_concentration", e.family.dynamics_concentration, positive);
+      e.family.observation_noise = number(env, "observation_noise", e.family.observation_noise, unit_interval);
+      e.draws = whole(env, "draws", e.draws, 1);
+      return e;
+    }
+    const char* given_by = file ? "environment.file" : "environment.model";
+    if (file && model) in_.fail(*model, "give either environment.file or environment.model, not both");
+    for (const std::string& k : family_keys)
+      if (const std::optional<Located> v = get(env, k))
+        in_.fail(*v, fmt::format("is a setting of the synthetic family and cannot be combined with {}: the model "
+                                 "fixes the environment",
+                                 given_by));
+    e.draws = whole(env, "draws", 1, 1);
+    if (e.draws != 1)
+      in_.fail(*get(env, "draws"),
+               fmt::format("must be 1 with {}: a model is one environment, got {}", given_by, e.draws));
+    if (!given_) given_ = file ? model_file(*file) : parse_model(model->node, in_.file(), model->key, 1, 1.0);
+    e.given = *given_;
+    e.given->model.horizon = e.horizon;
+    e.given->model.discount = e.discount;
+    return e;
+  }
+
+  // The model named by environment.file, resolved relative to the study file's directory.
+  Environment model_file(const Located& value) const {
+    const std::string written = in_.text(value);
+    if (written.empty()) in_.fail(value, "must name a model file");
+    fs::path path(written);
+    if (path.is_relative()) path = base_dir_ / path;
+    std::error_code ec;
+    if (!fs::is_regular_file(path, ec))
+      in_.fail(value, fmt::format("cannot read the model file '{}': {}", path.string(),
+                                  fs::exists(path, ec) ? "not a regular file" : "no such file"));
+    return load_model(path, 1, 1.0);  // horizon and discount are the study's, set by the caller
+  }
+
+  std::vector<int> budget_list(const Section& s, std::string_view name, std::vector<int> fallback, int min) const {
+    const std::optional<Located> v = get(s, name);
+    if (!v) return fallback;
+    const std::vector<Located> items = in_.items(*v);
+    if (items.empty()) in_.fail(*v, "must list at least one budget");
+    std::vector<int> out;
+    for (const Located& item : items) {
+      const int x = in_.whole_int(item, min);
+      if (!out.empty() && x <= out.back())
+        in_.fail(item, fmt::format("must be larger than the previous budget ({}): budgets are strictly increasing; "
+                                   "got {}",
+                                   out.back(), x));
+      out.push_back(x);
+    }
+    return out;
+  }
+
+  template <class T, class Parse>
+  std::vector<T> name_list(const Section& s, std::string_view key, std::string_view what, std::vector<T> fallback,
+                           const std::vector<std::string>& valid, Parse parse) const {
+    const std::optional<Located> v = get(s, key);
+    if (!v) return fallback;
+    const std::vector<Located> items = in_.items(*v);
+    if (items.empty()) in_.fail(*v, fmt::format("must list at least one {}", what));
+    std::vector<T> out;
+    for (std::size_t i = 0; i < items.size(); ++i) {
+      const std::string text = in_.text(items[i]);
+      const std::optional<T> x = parse(text);
+      if (!x) in_.fail(items[i], input::unknown_name(what, text, valid));
+      for (std::size_t j = 0; j < i; ++j)
+        if (out[j] == *x) in_.fail(items[i], fmt::format("'{}' is listed twice (first as {})", text, items[j].key));
+      out.push_back(*x);
+    }
+    return out;
+  }
+
+  std::map<Measure, double> targets(const Section& top, const std::vector<Measure>& measures) const {
+    const auto measured = [&](Measure m) { return std::find(measures.begin(), measures.end(), m) != measures.end(); };
+    const Section t = section(top, "targets", measure_names());
+    const bool swept = std::any_of(overrides_.begin(), overrides_.end(),
+                                   [](const auto& o) { return o.first.rfind("targets.", 0) == 0; });
+    std::map<Measure, double> out;
+    if (!top.find("targets") && !swept) {
+      if (measured(Measure::model_kl)) out[Measure::model_kl] = 0.02;
+      return out;
+    }
+    for (Measure m : all_measures) {
+      const std::optional<Located> v = get(t, name(m));
+      if (!v) continue;
+      const double x = number(t, name(m), 0.0, positive);
+      if (!measured(m)) {
+        std::vector<std::string> names;
+        for (Measure k : measures) names.emplace_back(name(k));
+        in_.fail(*v, fmt::format("is a target for {}, which is not measured (measures: [{}]); add it to measures or "
+                                 "remove the target",
+                                 name(m), input::join(names)));
+      }
+      out[m] = x;
+    }
+    return out;
+  }
+
+  std::vector<SweepAxis> sweep(const Section& top) const {
+    const Located* v = top.find("sweep");
+    if (!v) return {};
+    if (v->node.IsDefined() && !v->node.IsNull() && !v->node.IsMap())
+      in_.fail(*v, "expected a mapping from setting keys (e.g. logging.privilege) to lists of values, got " +
+                       input::describe(v->node));
+    std::vector<SweepAxis> axes;
+    for (const Entry& e : in_.entries(*v, sweepable_paths(), sweep_refusals())) {
+      SweepAxis axis{e.name, {}, {}};
+      if (!e.value.node.IsSequence())
+        in_.fail(e.value, "expected a non-empty list of values, got " + input::describe(e.value.node));
+      axis.values = in_.items(e.value);
+      if (axis.values.empty()) in_.fail(e.value, "must list at least one value");
+      for (std::size_t i = 0; i < axis.values.size(); ++i) {
+        const Located& item = axis.values[i];
+        std::string canonical;
+        switch (kind_of(e.name)) {
+          case Kind::whole: canonical = fmt::format("{}", in_.whole(item)); break;
+          case Kind::seed: canonical = fmt::format("{}", in_.unsigned_whole(item)); break;
+          case Kind::number: canonical = number_text(in_.number(item)); break;
+          case Kind::text: canonical = in_.text(item); break;
+        }
+        for (std::size_t j = 0; j < i; ++j)
+          if (axis.canonical[j] == canonical)
+            in_.fail(item, fmt::format("value {} is listed twice (first as {})", canonical, axis.values[j].key));
+        axis.canonical.push_back(std::move(canonical));
+      }
+      axes.push_back(std::move(axis));
+    }
+    return axes;
+  }
+
+  Reader in_;
+  fs::path base_dir_;
+  std::map<std::string, Located> overrides_;  // swept key path -> value, for the scenario being read
+  std::optional<Environment> given_;          // the given model, read once (it cannot be swept)
+};
+
+// ---- Writing ------------------------------------------------------------------------------------
+
+// The sweep axes behind the scenarios (key, values in order), after checking that the scenarios
+// are their cartesian product in expansion order.
+std::vector<std::pair<std::string, std::vector<std::string>>> sweep_axes(const Study& study) {
+  const auto not_a_sweep = [] {
+    throw std::invalid_argument("resolved_yaml: the scenarios are not the cartesian product of their assignments");
+  };
+  std::vector<std::pair<std::string, std::vector<std::string>>> axes;
+  for (const auto& [key, value] : study.scenarios.front().assignments) axes.push_back({key, {}});
+  for (const Scenario& sc : study.scenarios) {
+    if (sc.assignments.size() != axes.size()) not_a_sweep();
+    for (std::size_t k = 0; k < axes.size(); ++k) {
+      if (sc.assignments[k].first != axes[k].first) not_a_sweep();
+      auto& values = axes[k].second;
+      if (std::find(values.begin(), values.end(), sc.assignments[k].second) == values.end())
+        values.push_back(sc.assignments[k].second);
+    }
+  }
+  std::size_t total = 1;
+  for (const auto& a : axes) total *= a.second.size();
+  if (total != study.scenarios.size()) not_a_sweep();
+  std::vector<std::size_t> digit(axes.size(), 0);
+  for (const Scenario& sc : study.scenarios) {
+    for (std::size_t k = 0; k < axes.size(); ++k)
+      if (sc.assignments[k].second != axes[k].second[digit[k]]) not_a_sweep();
+    for (std::size_t k = axes.size(); k-- > 0;) {
+      if (++digit[k] < axes[k].second.size()) break;
+      digit[k] = 0;
+    }
+  }
+  return axes;
+}
+
+}  // namespace
+
+Study parse_study(const std::string& yaml_text, const std::filesystem::path& file) {
+  const YAML::Node root = input::parse_yaml(yaml_text, file.string());
+  return StudyParser(file).parse(root);
+}
+
+Study load_study(const std::filesystem::path& file) {
+  return parse_study(input::read_file_text(file, "study file"), file);
+}
+
+std::string resolved_yaml(const Study& study) {
+  if (study.scenarios.empty()) throw std::invalid_argument("resolved_yaml: a study has at least one scenario");
+  const auto axes = sweep_axes(study);
+  std::set<std::string> swept;
+  for (const auto& a : axes) swept.insert(a.first);
+  const ScenarioSettings& s = study.scenarios.front().settings;
+
+  YAML::Emitter out;
+  const auto put = [&](const std::string& path, std::string_view key, const std::string& value) {
+    if (!swept.count(path)) out << YAML::Key << std::string(key) << YAML::Value << value;
+  };
+  const auto put_int = [&](const std::string& path, std::string_view key, long long value) {
+    put(path, key, fmt::format("{}", value));
+  };
+  const auto put_number = [&](const std::string& path, std::string_view key, double value) {
+    put(path, key, number_text(value));
+  };
+  const auto put_list = [&](std::string_view key, const auto& values, auto text) {
+    out << YAML::Key << std::string(key) << YAML::Value << YAML::Flow << YAML::BeginSeq;
+    for (const auto& v : values) out << text(v);
+    out << YAML::EndSeq;
+  };
+  const auto int_text = [](int x) { return fmt::format("{}", x); };
+
+  out << YAML::Comment("dobudget resolved study: every default filled in");
+  out << YAML::BeginMap;
+  out << YAML::Key << "name" << YAML::Value << YAML::DoubleQuoted << study.name;
+  out << YAML::Key << "seed" << YAML::Value << fmt::format("{}", study.seed);
+
+  const EnvironmentSettings& e = s.environment;
+  out << YAML::Key << "environment" << YAML::Value << YAML::BeginMap;
+  if (e.given) {
+    put_int("environment.horizon", "horizon", e.horizon);
+    put_number("environment.discount", "discount", e.discount);
+    put_int("environment.draws", "draws", e.draws);
+    out << YAML::Key << "model" << YAML::Value;
+    emit_model(out, *e.given);
+  } else {
+    put_int("environment.states", "states", e.family.states);
+    put_int("environment.actions", "actions", e.family.actions);
+    put_int("environment.observations", "observations", e.family.observations);
+    put_int("environment.horizon", "horizon", e.horizon);
+    put_number("environment.discount", "discount", e.discount);
+    put_int("environment.draws", "draws", e.draws);
+    put_number("environment.dynamics_concentration", "dynamics_concentration", e.family.dynamics_concentration);
+    put_number("environment.observation_noise", "observation_noise", e.family.observation_noise);
+  }
+  out << YAML::EndMap;
+
+  out << YAML::Key << "logging" << YAML::Value << YAML::BeginMap;
+  put_number("logging.privilege", "privilege", s.logging.privilege);
+  put_number("logging.temperature", "temperature", s.logging.temperature);
+  put_number("logging.q_discount", "q_discount", s.logging.q_discount);
+  out << YAML::EndMap;
+
+  out << YAML::Key << "pilot" << YAML::Value << YAML::BeginMap;
+  put("pilot.policy", "policy", "uniform");
+  out << YAML::EndMap;
+
+  out << YAML::Key << "budgets" << YAML::Value << YAML::BeginMap;
+  put_list("logged", s.logged_budgets, int_text);
+  put_list("pilot", s.pilot_budgets, int_text);
+  out << YAML::EndMap;
+
+  put_int("replicates", "replicates", s.replicates);
+  put_list("strategies", s.strategies, [](Strategy x) { return std::string(name(x)); });
+  put_list("measures", s.measures, [](Measure x) { return std::string(name(x)); });
+
+  // fit.latent_states may follow a swept environment.states (when it was not given): then it
+  // differs between scenarios without being swept, and is left to its default.
+  const bool latent_follows =
+      !swept.count("fit.latent_states") &&
+      std::any_of(study.scenarios.begin(), study.scenarios.end(),
+                  [&](const Scenario& sc) { return sc.settings.fit.latent_states != s.fit.latent_states; });
+  out << YAML::Key << "fit";
+  if (latent_follows) out << YAML::Comment("latent_states left to its default, each scenario's number of states");
+  out << YAML::Value << YAML::BeginMap;
+  if (!latent_follows) put_int("fit.latent_states", "latent_states", s.fit.latent_states);
+  put_int("fit.restarts", "restarts", s.fit.restarts);
+  put_int("fit.max_iterations", "max_iterations", s.fit.max_iterations);
+  put_number("fit.tolerance", "tolerance", s.fit.tolerance);
+  put_number("fit.prior", "prior", s.fit.prior);
+  out << YAML::EndMap;
+
+  out << YAML::Key << "evaluation" << YAML::Value << YAML::BeginMap;
+  put_int("evaluation.trajectories", "trajectories", s.evaluation.trajectories);
+  put("evaluation.policy", "policy", "uniform");
+  out << YAML::EndMap;
+
+  out << YAML::Key << "planner" << YAML::Value << YAML::BeginMap;
+  put_int("planner.belief_points", "belief_points", s.planner.belief_points);
+  put("planner.seed", "seed", fmt::format("{}", s.planner.seed));
+  put_int("planner.exact_histories", "exact_histories", s.planner.exact_histories);
+  put_int("planner.rollouts", "rollouts", s.planner.rollouts);
+  out << YAML::EndMap;
+
+  out << YAML::Key << "targets" << YAML::Value << YAML::BeginMap;
+  for (const auto& [measure, target] : s.targets) {
+    const std::string key(name(measure));
+    put("targets." + key, key, number_text(target));
+  }
+  out << YAML::EndMap;
+
+  put_number("assurance", "assurance", s.assurance);
+
+  if (!axes.empty()) {
+    out << YAML::Key << "sweep" << YAML::Value << YAML::BeginMap;
+    for (const auto& [key, values] : axes) {
+      out << YAML::Key << key << YAML::Value << YAML::Flow << YAML::BeginSeq;
+      for (const std::string& v : values) out << v;
+      out << YAML::EndSeq;
+    }
+    out << YAML::EndMap;
+  }
+  out << YAML::EndMap;
+  if (!out.good()) throw std::logic_error("resolved_yaml: " + out.GetLastError());
+  return std::string(out.c_str()) + "\n";
+}
+
+}  // namespace dobudget::io

@@ -1,0 +1,212 @@
+// answer.csv / answer.md / terminal table writers, src/io/answer_table.hpp.
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <cstdint>
+#include <cstdlib>
+#include <filesystem>
+#include <fstream>
+#include <limits>
+#include <sstream>
+#include <string>
+#include <vector>
+
+#include "io/answer_table.hpp"
+
+using namespace dobudget;
+namespace fs = std::filesystem;
+
+namespace {
+
+// A fresh empty directory under the system temporary directory, removed at scope exit.
+struct TempDir {
+  fs::path path;
+  TempDir() {
+    path = fs::temp_directory_path() /
+           ("dobudget-answer-test-" + std::to_string(reinterpret_cast<std::uintptr_t>(this)) + "-" +
+            std::to_string(std::rand()));
+    fs::remove_all(path);
+    fs::create_directories(path);
+  }
+  ~TempDir() {
+    std::error_code ec;
+    fs::remove_all(path, ec);
+  }
+};
+
+std::vector<std::string> split(const std::string& line) {
+  std::vector<std::string> out;
+  std::string cell;
+  std::istringstream in(line);
+  while (std::getline(in, cell, ',')) out.push_back(cell);
+  if (!line.empty() && line.back() == ',') out.emplace_back();
+  return out;
+}
+
+// Reads a numeric cell back the way pandas would: empty -> NaN, "inf" -> infinity.
+double parse(const std::string& s) {
+  if (s.empty()) return std::numeric_limits<double>::quiet_NaN();
+  return std::strtod(s.c_str(), nullptr);
+}
+
+std::optional<double> parse_opt(const std::string& s) {
+  if (s.empty()) return std::nullopt;
+  return parse(s);
+}
+
+bool same(double a, double b) { return (std::isnan(a) && std::isnan(b)) || a == b; }
+
+std::vector<AnswerRow> sample_rows() {
+  AnswerRow a;
+  a.scenario = 0;
+  a.measure = Measure::model_kl;
+  a.target = 0.02;
+  a.assurance = 0.8;
+  a.criterion = Criterion::assurance;
+  a.strategy = Strategy::pilot_only;
+  a.logged = 0;
+  a.needed_pilot = 208.00838230519041;
+  a.low = 101.3;
+  a.high = 1.0 / 3.0 * 1000.0;
+  a.status = AnswerStatus::reached;
+  a.pairs = 40;
+
+  AnswerRow b = a;
+  b.strategy = Strategy::regime_aware;
+  b.logged = 1000;
+  b.needed_pilot = 12345.678901234567;
+  b.low = 3000.5;
+  b.high = std::numeric_limits<double>::infinity();
+  b.status = AnswerStatus::extrapolated;
+  b.floor = 0.0031415926535897933;
+  b.saved_vs_pilot_only = -12137.670518929377;
+  b.exchange_rate = -12.137670518929377;
+  b.pairs = 39;
+
+  AnswerRow c = a;
+  c.scenario = 1;
+  c.measure = Measure::return_gap;
+  c.target = 0.1;
+  c.assurance = std::numeric_limits<double>::quiet_NaN();
+  c.criterion = Criterion::mean;
+  c.strategy = Strategy::pooled;
+  c.needed_pilot = std::numeric_limits<double>::infinity();
+  c.low = 500;
+  c.high = std::numeric_limits<double>::infinity();
+  c.status = AnswerStatus::unreachable;
+  c.floor = 0.25;
+  c.saved_vs_pilot_only = std::nullopt;
+
+  AnswerRow d = a;
+  d.status = AnswerStatus::met_at_smallest;
+  d.needed_pilot = 10;
+  d.low = 10;
+  d.high = 10;
+  return {a, b, c, d};
+}
+
+}  // namespace
+
+TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
+  // Header: design.md sec. 7 fixes the first ten columns; the rest are appended (answer_table.hpp).
+  // Numbers are written shortest-round-trip, so strtod gives back the same doubles (*common practice*:
+  // fmt's "{}" for double is the shortest representation that round-trips).
+  TempDir dir;
+  const fs::path file = dir.path / "answer.csv";
+  const auto rows = sample_rows();
+  io::write_answer_csv(file, rows);
+
+  std::ifstream in(file);
+  std::string line;
+  REQUIRE(std::getline(in, line));
+  CHECK(line ==
+        "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
+        "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion");
+  std::vector<std::vector<std::string>> parsed;
+  while (std::getline(in, line)) parsed.push_back(split(line));
+  REQUIRE(parsed.size() == rows.size());
+  for (std::size_t i = 0; i < rows.size(); ++i) {
+    const auto& c = parsed[i];
+    const auto& r = rows[i];
+    INFO("row " << i);
+    REQUIRE(c.size() == 15);
+    CHECK(std::stoi(c[0]) == r.scenario);
+    CHECK(parse_measure(c[1]) == r.measure);
+    CHECK(same(parse(c[2]), r.target));
+    CHECK(same(parse(c[3]), r.assurance));
+    CHECK(parse_strategy(c[4]) == r.strategy);
+    CHECK(std::stoi(c[5]) == r.logged);
+    CHECK(same(parse(c[6]), r.needed_pilot));
+    CHECK(same(parse(c[7]), r.low));
+    CHECK(same(parse(c[8]), r.high));
+    CHECK(parse_answer_status(c[9]) == r.status);
+    CHECK(parse_opt(c[10]) == r.floor);
+    CHECK(parse_opt(c[11]) == r.saved_vs_pilot_only);
+    CHECK(parse_opt(c[12]) == r.exchange_rate);
+    CHECK(std::stoi(c[13]) == r.pairs);
+    CHECK(parse_criterion(c[14]) == r.criterion);
+  }
+  // Spelling of special cells: "inf" for infinity, empty for missing.
+  CHECK(parsed[1][8] == "inf");
+  CHECK(parsed[2][3].empty());
+  CHECK(parsed[2][11].empty());
+  CHECK(parsed[0][10].empty());
+
+  // Written through a temporary name and renamed: nothing else is left in the directory.
+  std::vector<fs::path> entries;
+  for (const auto& e : fs::directory_iterator(dir.path)) entries.push_back(e.path().filename());
+  REQUIRE(entries.size() == 1);
+  CHECK(entries[0] == "answer.csv");
+
+  // Rewriting replaces the file whole.
+  io::write_answer_csv(file, {rows[0]});
+  std::ifstream again(file);
+  int lines = 0;
+  while (std::getline(again, line)) ++lines;
+  CHECK(lines == 2);
+}
+
+TEST_CASE("answer.md: tables, criterion, statuses and caution", "[answer_table]") {
+  TempDir dir;
+  const fs::path file = dir.path / "answer.md";
+  io::write_answer_md(file, "example", {"logging.privilege=0.5", "logging.privilege=0.9"}, sample_rows());
+  std::ifstream in(file);
+  std::stringstream ss;
+  ss << in.rdbuf();
+  const std::string md = ss.str();
+  CHECK(md.find("# Pilot episodes needed: example") != std::string::npos);
+  CHECK(md.find("## Scenario 0: logging.privilege=0.5") != std::string::npos);
+  CHECK(md.find("## Scenario 1: logging.privilege=0.9") != std::string::npos);
+  CHECK(md.find("Criterion `assurance`: at least 80% of") != std::string::npos);
+  CHECK(md.find("Criterion `mean`") != std::string::npos);
+  CHECK(md.find("| pilot-only | 0 | 209 | [102, 334] | reached |") != std::string::npos);
+  CHECK(md.find("| pilot-only | 0 | <= 10 |") != std::string::npos);  // upper bound spelled out
+  CHECK(md.find("an upper bound") != std::string::npos);
+  CHECK(md.find("| unreachable | 0.25 |") != std::string::npos);
+  CHECK(md.find("This is a simulation under stated assumptions (the synthetic family or the given model, the "
+                "logging model, the pilot policy); it is no substitute for a qualified statistician, for ethics "
+                "review, or for local regulations on trials.") != std::string::npos);
+  std::size_t n = 0;
+  for (const auto& e : fs::directory_iterator(dir.path)) {
+    (void)e;
+    ++n;
+  }
+  CHECK(n == 1);
+}
+
+TEST_CASE("terminal table: aligned columns", "[answer_table]") {
+  const std::string t = io::format_answer_table(sample_rows());
+  std::vector<std::string> lines;
+  std::istringstream in(t);
+  std::string line;
+  while (std::getline(in, line)) lines.push_back(line);
+  REQUIRE(lines.size() == 5);
+  CHECK(lines[0].rfind("scenario", 0) == 0);
+  // The status column starts at the same offset on every line.
+  const auto col = lines[0].find("status");
+  REQUIRE(col != std::string::npos);
+  CHECK(lines[1].compare(col, 7, "reached") == 0);
+  CHECK(lines[2].compare(col, 12, "extrapolated") == 0);
+  CHECK(lines[3].compare(col, 11, "unreachable") == 0);
+  CHECK(lines[4].compare(col, 15, "met-at-smallest") == 0);
+}
