@@ -83,7 +83,8 @@ PlanOutcome plan_study(const Study& study, const std::string& resolved, const Pl
     if (opt.on_progress) opt.on_progress(progress);
   };
   hooks.stop_requested = opt.stop_requested;
-  run_units(study, units, todo, opt.threads, hooks);
+  if (opt.executor) opt.executor(study, units, todo, opt.threads, hooks);
+  else run_units(study, units, todo, opt.threads, hooks);
 
   out.units_done = progress.done;
   out.complete = out.units_done == out.units_total;

@@ -10,6 +10,7 @@
 #include <vector>
 
 #include "core/run_record.hpp"
+#include "core/runner.hpp"
 #include "core/settings.hpp"
 #include "core/unit.hpp"
 
@@ -37,6 +38,11 @@ struct PlanOptions {
   std::optional<Shard> shard;
   std::function<void(const Progress&)> on_progress;  // called after every finished unit
   std::function<bool()> stop_requested;             // polled between units
+  // Runs the units `todo` and reports each finished one through the hooks. Default: run_units
+  // (threads of this process); an MPI build supplies one that also hands units to other ranks.
+  std::function<void(const Study&, const std::vector<UnitId>&, const std::vector<std::size_t>& todo, int threads,
+                     const RunnerHooks&)>
+      executor;
 };
 
 struct PlanOutcome {

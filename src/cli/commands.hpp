@@ -1,0 +1,41 @@
+// The commands of the dobudget front end, one file each. They parse arguments already split by
+// CLI11 (main.cpp), call the libraries and print. Exit codes: 0 success, 1 internal failure,
+// 2 bad input (file, line and key named; nothing half-written), 130 interrupted.
+#pragma once
+#include <stdexcept>
+#include <string>
+#include <vector>
+
+namespace dobudget::cli {
+
+// The caution shown by --help, after results and in answer.md.
+extern const char* const caution;
+
+// Bad command-line input: reported like bad file input, exit code 2.
+struct BadInput : std::runtime_error {
+  using std::runtime_error::runtime_error;
+};
+
+struct PlanArgs {
+  std::string study;
+  std::string out;    // empty: runs/<study name>
+  std::string shard;  // empty or "K/N"
+  int threads = 0;    // 0: all cores
+  bool quiet = false;
+};
+int plan_command(const PlanArgs& args);
+
+int check_command(const std::string& study);
+
+int draw_command(const std::string& study, const std::string& out);
+
+struct AnswerArgs {
+  std::string dir;
+  std::vector<std::string> targets;  // "measure=value"
+  double assurance = 0.0;            // 0: the study's
+  std::string criterion;             // empty: assurance
+  int bootstrap = -1;                // -1: default
+};
+int answer_command(const AnswerArgs& args);
+
+}  // namespace dobudget::cli
