@@ -61,7 +61,7 @@ int answer_command(const AnswerArgs& args) {
   const auto rows = io::read_runs(dir / "runs.csv");
   const auto answers = compute_study_answers(study, rows, ov);
   io::write_answer_files(dir, study, answers);
-  std::printf("%s", io::format_answer_table(answers).c_str());
+  std::printf("%s", io::format_answer_table(answers, &study).c_str());
   std::printf("\nwrote %s and %s\n\n%s\n", (dir / "answer.csv").string().c_str(), (dir / "answer.md").string().c_str(),
               caution);
   return 0;

@@ -1,7 +1,8 @@
-// dobudget check: validate a study, print it resolved, count units and fits.
+// dobudget check: validate a study, print it resolved, count units and fits, estimate the cost.
 #include <cstdio>
 
 #include "cli/commands.hpp"
+#include "core/cost_estimate.hpp"
 #include "core/unit.hpp"
 #include "io/study_file.hpp"
 
@@ -16,6 +17,15 @@ int check_command(const std::string& study_file) {
     fits += static_cast<std::size_t>(fits_per_unit(study.scenarios[static_cast<std::size_t>(u.scenario)].settings));
   }
   std::printf("# valid study: %zu scenario(s), %zu units, %zu model fits\n", study.scenarios.size(), units, fits);
+  std::fprintf(stderr, "calibrating on this machine (one fit per scenario)...\n");
+  const CostEstimate cost = estimate_cost(study);
+  for (const auto& c : cost.scenarios)
+    std::printf("# scenario %d: %d units, %lld fits, calibration %.2g s per 1000 observations fitted, %.2g s of measures per fit: about %.3g core-hours\n",
+                c.scenario, c.units, c.fits, 1000.0 * c.seconds_per_observation, c.measure_seconds_per_fit,
+                c.core_seconds / 3600.0);
+  std::printf("# estimated cost: %.3g core-hours (%.0f core-seconds); wall time is about this divided by the cores used\n",
+              cost.core_seconds / 3600.0, cost.core_seconds);
+  std::printf("# (from one timed calibration fit per scenario on this machine; see DEVELOPERS.md for its accuracy)\n");
   return 0;
 }
 

@@ -152,6 +152,20 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
     }
   }
 
+  if (scenario_labels.size() > 1 && !rows.empty()) {
+    s += "\n## Worst case over the scenarios\n\nFor each target, strategy and logged budget, the scenario that "
+         "needs the most pilot episodes: the budget to plan for when the swept quantity is unknown.\n\n";
+    s += "| measure | target | criterion | strategy | logged | needed pilot | interval | status | worst at |\n";
+    s += "|---|---:|---|---|---:|---:|---|---|---|\n";
+    for (const auto& r : worst_case_over_scenarios(rows)) {
+      const auto sc = static_cast<std::size_t>(r.scenario);
+      s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.measure), r.target,
+                       r.criterion == Criterion::mean ? std::string("mean") : "assurance " + percent(r.assurance),
+                       name(r.strategy), r.logged, human_needed(r), human_interval(r), name(r.status),
+                       sc < scenario_labels.size() ? scenario_labels[sc] : std::to_string(r.scenario));
+    }
+  }
+
   s += R"(
 ## How to read this
 
@@ -201,22 +215,10 @@ void write_answer_md(const std::filesystem::path& path, const std::string& study
   write_file_atomically(path, format_answer_md(study_name, scenario_labels, rows));
 }
 
-std::string format_answer_table(const std::vector<AnswerRow>& rows) {
-  const std::vector<std::string> header{"scenario", "measure", "target", "criterion", "strategy", "logged",
-                                        "needed",   "interval", "status", "saved",     "per logged", "pairs"};
-  // Right-aligned (numeric) columns.
-  const std::vector<bool> right{true, false, true, false, false, true, true, false, false, true, true, true};
-  std::vector<std::vector<std::string>> cells;
-  cells.push_back(header);
-  for (const auto& r : rows) {
-    const std::string crit = r.criterion == Criterion::mean ? std::string("mean")
-                                                            : fmt::format("assurance {}", r.assurance);
-    cells.push_back({std::to_string(r.scenario), std::string(name(r.measure)), fmt::format("{}", r.target), crit,
-                     std::string(name(r.strategy)), std::to_string(r.logged), human_needed(r), human_interval(r),
-                     std::string(name(r.status)), human_signed_episodes(r.saved_vs_pilot_only),
-                     human_value(r.exchange_rate, "{:.3g}"), std::to_string(r.pairs)});
-  }
-  std::vector<std::size_t> width(header.size(), 0);
+namespace {
+
+std::string aligned(const std::vector<std::vector<std::string>>& cells, const std::vector<bool>& right) {
+  std::vector<std::size_t> width(cells.front().size(), 0);
   for (const auto& line : cells)
     for (std::size_t c = 0; c < line.size(); ++c) width[c] = std::max(width[c], line[c].size());
   std::string s;
@@ -230,6 +232,88 @@ std::string format_answer_table(const std::vector<AnswerRow>& rows) {
     while (!text.empty() && text.back() == ' ') text.pop_back();
     s += text;
     s += '\n';
+  }
+  return s;
+}
+
+// Scenario columns: the index, or one column per swept key with its value.
+std::vector<std::string> scenario_header(const Study* study) {
+  if (study == nullptr || study->scenarios.size() < 2 || study->scenarios.front().assignments.empty())
+    return {"scenario"};
+  std::vector<std::string> h;
+  for (const auto& [key, value] : study->scenarios.front().assignments) h.push_back(key);
+  return h;
+}
+
+std::vector<std::string> scenario_cells(const Study* study, int scenario) {
+  if (study == nullptr || study->scenarios.size() < 2 || study->scenarios.front().assignments.empty())
+    return {std::to_string(scenario)};
+  std::vector<std::string> c;
+  for (const auto& [key, value] : study->scenarios.at(static_cast<std::size_t>(scenario)).assignments) c.push_back(value);
+  return c;
+}
+
+std::vector<std::string> answer_cells(const AnswerRow& r) {
+  const std::string crit = r.criterion == Criterion::mean ? std::string("mean") : fmt::format("assurance {}", r.assurance);
+  return {std::string(name(r.measure)), fmt::format("{}", r.target), crit, std::string(name(r.strategy)),
+          std::to_string(r.logged), human_needed(r), human_interval(r), std::string(name(r.status)),
+          human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"), std::to_string(r.pairs)};
+}
+
+const std::vector<std::string> answer_header{"measure", "target", "criterion", "strategy", "logged", "needed",
+                                             "interval", "status", "saved", "per logged", "pairs"};
+const std::vector<bool> answer_right{false, true, false, false, true, true, false, false, true, true, true};
+
+}  // namespace
+
+std::vector<AnswerRow> worst_case_over_scenarios(const std::vector<AnswerRow>& rows) {
+  std::vector<AnswerRow> worst;
+  auto same_cell = [](const AnswerRow& a, const AnswerRow& b) {
+    const bool same_assurance = a.assurance == b.assurance || (std::isnan(a.assurance) && std::isnan(b.assurance));
+    return a.measure == b.measure && a.target == b.target && same_assurance && a.criterion == b.criterion &&
+           a.strategy == b.strategy && a.logged == b.logged;
+  };
+  auto worse = [](const AnswerRow& a, const AnswerRow& b) {  // a needs more than b
+    if (std::isnan(a.needed_pilot)) return !std::isnan(b.needed_pilot);
+    return !std::isnan(b.needed_pilot) && a.needed_pilot > b.needed_pilot;
+  };
+  for (const auto& r : rows) {
+    auto it = std::find_if(worst.begin(), worst.end(), [&](const AnswerRow& w) { return same_cell(w, r); });
+    if (it == worst.end()) worst.push_back(r);
+    else if (worse(r, *it)) *it = r;
+  }
+  return worst;
+}
+
+std::string format_answer_table(const std::vector<AnswerRow>& rows, const Study* study) {
+  const std::vector<std::string> sh = scenario_header(study);
+  std::vector<std::vector<std::string>> cells;
+  std::vector<std::string> header = sh;
+  header.insert(header.end(), answer_header.begin(), answer_header.end());
+  std::vector<bool> right(sh.size(), sh.size() == 1 && sh.front() == "scenario");
+  right.insert(right.end(), answer_right.begin(), answer_right.end());
+  cells.push_back(header);
+  for (const auto& r : rows) {
+    auto line = scenario_cells(study, r.scenario);
+    const auto a = answer_cells(r);
+    line.insert(line.end(), a.begin(), a.end());
+    cells.push_back(line);
+  }
+  std::string s = aligned(cells, right);
+  if (study != nullptr && study->scenarios.size() > 1) {
+    std::vector<std::vector<std::string>> w;
+    std::vector<std::string> h = answer_header;
+    h.insert(h.begin(), "worst at");
+    w.push_back(h);
+    for (const auto& r : worst_case_over_scenarios(rows)) {
+      auto line = answer_cells(r);
+      line.insert(line.begin(), study->scenarios.at(static_cast<std::size_t>(r.scenario)).label);
+      w.push_back(line);
+    }
+    std::vector<bool> wr = answer_right;
+    wr.insert(wr.begin(), false);
+    s += "\nworst case over the swept scenarios (the pilot budget to plan for when the swept quantity is unknown):\n";
+    s += aligned(w, wr);
   }
   return s;
 }

@@ -19,6 +19,7 @@
 #include <vector>
 
 #include "core/answer.hpp"
+#include "core/settings.hpp"
 
 namespace dobudget::io {
 
@@ -39,7 +40,15 @@ void write_answer_md(const std::filesystem::path& path, const std::string& study
                      const std::vector<std::string>& scenario_labels, const std::vector<AnswerRow>& rows);
 
 // A plain-text table with aligned columns, one line per row, for printing on a terminal.
-std::string format_answer_table(const std::vector<AnswerRow>& rows);
+// Without a study, scenarios are shown by index. With a study that sweeps keys, one column per
+// swept key shows its value, and a second table gives the worst case over the swept scenarios for
+// each query, strategy and logged budget (the plan to budget for when the swept quantity is
+// unknown).
+std::string format_answer_table(const std::vector<AnswerRow>& rows, const Study* study = nullptr);
+
+// The worst case over scenarios: for each (measure, target, assurance, criterion, strategy,
+// logged), the row with the largest needed_pilot (an unknown need, NaN, counts as the worst).
+std::vector<AnswerRow> worst_case_over_scenarios(const std::vector<AnswerRow>& rows);
 
 }  // namespace dobudget::io
 

@@ -210,3 +210,26 @@ TEST_CASE("terminal table: aligned columns", "[answer_table]") {
   CHECK(lines[3].compare(col, 11, "unreachable") == 0);
   CHECK(lines[4].compare(col, 15, "met-at-smallest") == 0);
 }
+
+TEST_CASE("answer table: worst case over scenarios takes the largest need, unknown counting as worst",
+          "[answer_table]") {
+  // Definition (README, "worst case over the swept scenarios"): for each cell, the scenario with the
+  // largest needed_pilot; an unknown need (NaN, not-reached) is worse than any known one.
+  auto row = [](int scenario, double needed, int logged) {
+    dobudget::AnswerRow r;
+    r.scenario = scenario;
+    r.strategy = dobudget::Strategy::pooled;
+    r.target = 0.02;
+    r.assurance = 0.8;
+    r.logged = logged;
+    r.needed_pilot = needed;
+    return r;
+  };
+  const auto w = dobudget::io::worst_case_over_scenarios(
+      {row(0, 10.0, 0), row(1, 30.0, 0), row(2, 20.0, 0), row(0, 5.0, 100), row(1, std::nan(""), 100), row(2, 50.0, 100)});
+  REQUIRE(w.size() == 2);
+  CHECK(w[0].scenario == 1);
+  CHECK(w[0].needed_pilot == 30.0);
+  CHECK(w[1].scenario == 1);
+  CHECK(std::isnan(w[1].needed_pilot));
+}
