@@ -243,8 +243,9 @@ CellResult answer_cell(const Cell& cell, const AnswerQuery& q, std::uint64_t stu
   res.pairs = static_cast<int>(cell.pairs);
   res.point = evaluate(counts);
   if (q.bootstrap <= 0) return res;
-  const std::uint64_t sub = combine(combine(name_key(name(q.measure)), name_key(name(strategy))),
-                                    static_cast<std::uint64_t>(logged));
+  // The same resamples of (draw, replicate) pairs for every strategy and logged budget: identical
+  // rows give identical answers, and differences between strategies are paired (common random numbers).
+  const std::uint64_t sub = name_key(name(q.measure));
   Engine engine = make_engine(StreamKey{study_seed, static_cast<std::uint64_t>(scenario), 0, 0}, Purpose::bootstrap, sub);
   boost::random::uniform_int_distribution<std::uint32_t> pick(0, static_cast<std::uint32_t>(cell.pairs - 1));
   std::vector<double> needed(static_cast<std::size_t>(q.bootstrap));
