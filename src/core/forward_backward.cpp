@@ -17,7 +17,8 @@ ForwardBackward::ForwardBackward(int Z, int A, int O, int H)
       q0_(Z), qE_(static_cast<std::size_t>(Z) * O), qA_(static_cast<std::size_t>(Z) * A),
       M_(static_cast<std::size_t>(A) * O * Z * Z),
       alpha_(static_cast<std::size_t>(H + 1) * Z), scale_(static_cast<std::size_t>(H + 1)),
-      beta_(Z), next_(Z), tmp_(Z), outer_(static_cast<std::size_t>(A) * O * Z * Z) {}
+      beta_(Z), next_(Z), tmp_(Z), outer_(static_cast<std::size_t>(A) * O * Z * Z),
+      gamma_E_(static_cast<std::size_t>(O) * Z), gamma_A_(static_cast<std::size_t>(A) * Z) {}
 
 void ForwardBackward::load(const Pomdp& m, const Matrix* decision) {
   for (int z = 0; z < Z_; ++z) q0_[z] = m.initial(z);
@@ -100,12 +101,11 @@ void ForwardBackward::backward_and_count(const std::int32_t* o, const std::int32
   Eigen::Map<ZVec<ZC>> beta(beta_.data(), Z);
   Eigen::Map<ZVec<ZC>> v(next_.data(), Z);
   beta.setOnes();
+  // gamma_t is accumulated into transposed buffers, contiguous in z (gamma_E_[o][z],
+  // gamma_A_[a][z]); accumulate() folds them into the counts once per call.
   // gamma_H = alpha_H
-  {
-    const double* aH = al + static_cast<std::ptrdiff_t>(H) * Z;
-    double* E = c.emissions.data();
-    for (int z = 0; z < Z; ++z) E[z * O_ + o[H]] += aH[z];
-  }
+  Eigen::Map<ZVec<ZC>>(gamma_E_.data() + static_cast<std::ptrdiff_t>(o[H]) * Z, Z) +=
+      Eigen::Map<const ZVec<ZC>>(al + static_cast<std::ptrdiff_t>(H) * Z, Z);
   for (int t = H - 1; t >= 0; --t) {
     const double inv = 1.0 / scale_[static_cast<std::size_t>(t + 1)];
     if (w && t + 1 < H) {
@@ -121,13 +121,11 @@ void ForwardBackward::backward_and_count(const std::int32_t* o, const std::int32
     beta.noalias() = M.lazyProduct(v);  // beta_t
     X.noalias() += at * v.transpose();  // X += alpha_t v^T
     // gamma_t(z) = alpha_t(z) beta_t(z)
-    double* E = c.emissions.data();
-    for (int z = 0; z < Z; ++z) {
-      const double g = at[z] * beta[z];
-      E[z * O_ + o[t]] += g;
-      if (w) c.decision(z, a[t]) += g;
-      if (t == 0) c.initial(z) += g;
-    }
+    Eigen::Map<ZVec<ZC>> g(tmp_.data(), Z);
+    g = at.cwiseProduct(beta);
+    Eigen::Map<ZVec<ZC>>(gamma_E_.data() + static_cast<std::ptrdiff_t>(o[t]) * Z, Z) += g;
+    if (w) Eigen::Map<ZVec<ZC>>(gamma_A_.data() + static_cast<std::ptrdiff_t>(a[t]) * Z, Z) += g;
+    if (t == 0) c.initial += g;
   }
 }
 
@@ -146,6 +144,8 @@ double ForwardBackward::accumulate(const DataView& view, ExpectedCounts& counts)
   const Dataset& d = *view.data;
   const bool logged = view.regime == Regime::logged;
   std::fill(outer_.begin(), outer_.end(), 0.0);
+  std::fill(gamma_E_.begin(), gamma_E_.end(), 0.0);
+  std::fill(gamma_A_.begin(), gamma_A_.end(), 0.0);
   double ll = 0.0;
   switch (Z_) {
     case 1: ll = run_episodes<1>(d, view.count, logged, counts); break;
@@ -166,6 +166,10 @@ double ForwardBackward::accumulate(const DataView& view, ExpectedCounts& counts)
       const double* X = outer_.data() + (static_cast<std::size_t>(a) * O_ + o) * ZZ;
       for (std::size_t k = 0; k < ZZ; ++k) N[k] += M[k] * X[k];
     }
+  }
+  for (int z = 0; z < Z_; ++z) {
+    for (int o = 0; o < O_; ++o) counts.emissions(z, o) += gamma_E_[static_cast<std::size_t>(o) * Z_ + z];
+    for (int a = 0; a < A_; ++a) counts.decision(z, a) += gamma_A_[static_cast<std::size_t>(a) * Z_ + z];
   }
   counts.loglik += ll;
   return ll;

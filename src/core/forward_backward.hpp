@@ -56,10 +56,11 @@ class ForwardBackward {
   void backward_and_count(const std::int32_t* o, const std::int32_t* a, int horizon, bool logged, ExpectedCounts& c);
 
   int Z_, A_, O_, H_;
-  std::vector<double> q0_, qE_, qA_, M_;  // M_: [a][o][z][z']
+  std::vector<double> q0_, qE_, qA_, M_;  // M_: [a][o][z][z'] = qT[a](z, z') qE(z', o)
   bool has_decision_ = false;
   std::vector<double> alpha_, scale_, beta_, next_, tmp_;  // alpha_: (H+1) x Z
   std::vector<double> outer_;                              // [a][o][z][z'] accumulated xi / M
+  std::vector<double> gamma_E_, gamma_A_;                  // [o][z] and [a][z] accumulated gamma
 };
 
 // MAP M-step: writes the new q0, qT, qE (and qA when decision is not null) into model/decision.
