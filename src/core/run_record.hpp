@@ -2,6 +2,7 @@
 // design.md sec. 7.
 #pragma once
 #include <optional>
+#include <string>
 
 #include "core/strategy.hpp"
 
@@ -19,6 +20,7 @@ struct RunRecord {
   double loglik = 0.0;               // final training log-likelihood (penalised objective without prior)
   int iterations = 0;
   bool converged = false;
+  std::string note;                  // why a measure is empty, e.g. "no room for planning"; never contains a comma
   double fit_seconds = 0.0;          // wall clock: goes to timings.csv only
 };
 

@@ -83,6 +83,7 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
   struct Cell {
     FitResult fit;
     std::optional<double> kl, gap;
+    std::string note;
     double seconds = 0.0;
   };
   std::map<FitKey, Cell> cells;
@@ -104,7 +105,11 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
           c.fit = fit(views, k.strategy == Strategy::regime_aware, s.fit, env.model, fit_rng);
           c.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
           if (want_kl) c.kl = model_kl(eval, c.fit.model);
-          if (want_gap) c.gap = return_gap(env.model, c.fit.model, *ctx.return_gap, s.planner, key, &star_returns).gap;
+          if (want_gap) {
+            const ReturnGapResult g = return_gap(env.model, c.fit.model, *ctx.return_gap, s.planner, key, &star_returns);
+            c.gap = g.gap;
+            c.note = g.note;
+          }
           it = cells.emplace(k, std::move(c)).first;
         }
         const Cell& c = it->second;
@@ -120,6 +125,7 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
         r.loglik = c.fit.loglik;
         r.iterations = c.fit.iterations;
         r.converged = c.fit.converged;
+        r.note = c.note;
         r.fit_seconds = c.seconds;
         rows.push_back(r);
       }
