@@ -8,23 +8,11 @@
 #include <string>
 
 #include "core/belief.hpp"
+#include "core/sampling.hpp"
 
 namespace dobudget {
 namespace {
 
-// Index drawn from p (sums to ~1) by inverting the cumulative distribution with u in [0, 1);
-// rounding shortfall goes to the last index of positive probability.
-int sample_index(const double* p, int n, double u) {
-  double c = 0.0;
-  int last = 0;
-  for (int i = 0; i < n; ++i) {
-    if (p[i] <= 0.0) continue;
-    c += p[i];
-    last = i;
-    if (u < c) return i;
-  }
-  return last;
-}
 
 // b <- (b as predicted) | o in the belief model; if the model gives o probability 0, b keeps the
 // prediction (copied back from `pred`).
@@ -140,15 +128,15 @@ PolicyValue rollouts(const Pomdp& truth, const Pomdp* bm, const Plan* plan, int 
   boost::random::uniform_01<double> U;
   for (int i = 0; i < n; ++i) {
     const double u_s0 = U(eng), u_o0 = U(eng);
-    int s = sample_index(truth.initial.data(), S, u_s0);
-    int o = sample_index(truth.emissions.data() + static_cast<std::ptrdiff_t>(s) * O, O, u_o0);
+    int s = categorical_from_uniform(u_s0, truth.initial.data(), S);
+    int o = categorical_from_uniform(u_o0, truth.emissions.data() + static_cast<std::ptrdiff_t>(s) * O, O);
     if (plan) track(*bm, bm->initial.data(), o, b.data());
     double g = 1.0, total = 0.0;
     for (int t = 0; t < H; ++t) {
       const double u_a = U(eng), u_s = U(eng), u_o = U(eng);
       const int a = plan ? choose_action(*plan, t, b.data()) : std::min(A - 1, static_cast<int>(u_a * A));
-      s = sample_index(truth.transitions[a].data() + static_cast<std::ptrdiff_t>(s) * S, S, u_s);
-      o = sample_index(truth.emissions.data() + static_cast<std::ptrdiff_t>(s) * O, O, u_o);
+      s = categorical_from_uniform(u_s, truth.transitions[a].data() + static_cast<std::ptrdiff_t>(s) * S, S);
+      o = categorical_from_uniform(u_o, truth.emissions.data() + static_cast<std::ptrdiff_t>(s) * O, O);
       total += g * truth.rewards(o);
       g *= truth.discount;
       if (plan && t + 1 < H) {

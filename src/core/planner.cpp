@@ -9,6 +9,7 @@
 #include <stdexcept>
 
 #include "core/belief.hpp"
+#include "core/sampling.hpp"
 
 namespace dobudget {
 namespace {
@@ -44,19 +45,6 @@ void append(PointSet& set, const double* b, int n) {
   ++set.count;
 }
 
-// Index drawn from the (approximately normalised) distribution p with one uniform u in [0, 1);
-// rounding shortfall goes to the last index of positive probability.
-int sample_index(const double* p, int n, double u) {
-  double c = 0.0;
-  int last = 0;
-  for (int i = 0; i < n; ++i) {
-    if (p[i] <= 0.0) continue;
-    c += p[i];
-    last = i;
-    if (u < c) return i;
-  }
-  return last;
-}
 
 // Buffers for the backups, sized once per plan() call (capacity: points x alphas).
 struct Workspace {
@@ -246,7 +234,7 @@ bool simulate(const Pomdp& m, const Plan* greedy, Rule rule, int target, std::ve
     bool added = false;
     // o_0 ~ P(o_0), b_0 = p0 | o_0.
     observation_distribution(m, m.initial.data(), po);
-    const int o0 = sample_index(po, O, U(eng));
+    const int o0 = categorical_from_uniform(U(eng), po, O);
     for (int s = 0; s < S; ++s) b[s] = m.initial(s);
     condition(m, b, o0);
     for (int t = 0; t < H; ++t) {
@@ -260,7 +248,7 @@ bool simulate(const Pomdp& m, const Plan* greedy, Rule rule, int target, std::ve
       const int a = rule == Rule::greedy ? choose_action(*greedy, t, b) : std::min(A - 1, static_cast<int>(u * A));
       predict(m, b, a, nb);
       observation_distribution(m, nb, po);
-      const int o = sample_index(po, O, U(eng));
+      const int o = categorical_from_uniform(U(eng), po, O);
       if (condition(m, nb, o) <= 0.0) break;  // cannot happen for o drawn from po; defensive
       std::swap(b, nb);
     }

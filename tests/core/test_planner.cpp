@@ -8,38 +8,13 @@
 
 #include "core/plan_value.hpp"
 #include "core/planner.hpp"
+#include "random_pomdp.hpp"
 
 using namespace dobudget;
 
 namespace {
 
-// A random POMDP with Dirichlet(concentration) rows and Uniform(0, 1) rewards (test fixture).
-Pomdp random_pomdp(int S, int A, int O, int H, double gamma, std::uint64_t seed, double concentration = 1.0) {
-  Engine eng(seed);
-  boost::random::gamma_distribution<double> G(concentration);
-  boost::random::uniform_01<double> U;
-  auto fill = [&](auto row) {
-    double z = 0.0;
-    for (Eigen::Index i = 0; i < row.size(); ++i) z += (row(i) = G(eng));
-    row /= z;
-  };
-  Pomdp m;
-  m.states = S;
-  m.actions = A;
-  m.observations = O;
-  m.horizon = H;
-  m.discount = gamma;
-  m.initial.resize(S);
-  fill(m.initial.transpose());
-  m.transitions.assign(A, Matrix(S, S));
-  for (auto& T : m.transitions)
-    for (int s = 0; s < S; ++s) fill(T.row(s));
-  m.emissions.resize(S, O);
-  for (int s = 0; s < S; ++s) fill(m.emissions.row(s));
-  m.rewards.resize(O);
-  for (int o = 0; o < O; ++o) m.rewards(o) = U(eng);
-  return m;
-}
+using test::random_pomdp;
 
 // The tiger problem (Kaelbling, Littman and Cassandra, "Planning and acting in partially observable
 // stochastic domains", Artificial Intelligence 101, 1998, sec. 5; Cassandra, Kaelbling and Littman,
