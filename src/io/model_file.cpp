@@ -8,7 +8,7 @@
 #include <utility>
 #include <vector>
 
-#include "io/input_error.hpp"
+#include "io/yaml_input.hpp"
 
 namespace dobudget::io {
 namespace {
@@ -106,11 +106,7 @@ Environment parse_model(const YAML::Node& node, const std::string& file, const s
                   "rewards and optionally logging_policy; got " +
                       input::describe(node));
   const std::vector<Entry> entries = in.entries(root, model_keys, model_hints);
-  auto find = [&](std::string_view name) -> const Located* {
-    for (const Entry& e : entries)
-      if (e.name == name) return &e.value;
-    return nullptr;
-  };
+  auto find = [&](std::string_view name) { return input::find_entry(entries, name); };
   auto need = [&](std::string_view name) -> const Located& {
     if (const Located* v = find(name)) return *v;
     in.fail(root.line, input::child_key(key_prefix, name),

@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "io/model_file.hpp"
+#include "io/yaml_input.hpp"
 
 namespace dobudget::io {
 namespace {
@@ -139,11 +140,7 @@ struct Section {
   std::string path;
   std::vector<Entry> entries;
 
-  const Located* find(std::string_view name) const {
-    for (const Entry& e : entries)
-      if (e.name == name) return &e.value;
-    return nullptr;
-  }
+  const Located* find(std::string_view name) const { return input::find_entry(entries, name); }
 };
 
 struct SweepAxis {
