@@ -38,4 +38,13 @@ struct AnswerArgs {
 };
 int answer_command(const AnswerArgs& args);
 
+struct MergeArgs {
+  std::vector<std::string> dirs;  // run directories: the shards of one study
+  std::string out;                // the complete run directory to write
+};
+int merge_command(const MergeArgs& args);
+
+// Figures (gnuplot) and a report page in DIR/report/, from a finished run directory.
+int report_command(const std::string& dir);
+
 }  // namespace dobudget::cli

@@ -30,6 +30,8 @@ int main(int argc, char** argv) {
                          "  dobudget check configs/default.yaml          validate, show every default, count fits\n"
                          "  dobudget plan configs/default.yaml --threads 2\n"
                          "  dobudget plan study.yaml --shard 3/10 --out runs/part3   (one job-array task)\n"
+                         "  dobudget merge runs/part* --out runs/study   (combine the shards)\n"
+                         "  dobudget report runs/default                 (figures and runs/default/report/report.md)\n"
                          "  dobudget answer runs/default --target model_kl=0.01 --assurance 0.9   (re-analysis, seconds)\n"
                          "  dobudget draw configs/default.yaml --out envs   (write the synthetic environments)\n\n"
                          "Caution: ") +
@@ -61,6 +63,18 @@ int main(int argc, char** argv) {
   answer->add_option("--criterion", answer_args.criterion, "assurance (default: fraction of pairs meeting the target) or mean (mean measure meets it)");
   answer->add_option("--bootstrap", answer_args.bootstrap, "Bootstrap resamples for the 90% interval (default 1000; 0: none)");
 
+  MergeArgs merge_args;
+  auto* merge = app.add_subcommand(
+      "merge", "Combine the shards of a study (plan --shard K/N) into one complete run directory");
+  merge->add_option("dirs", merge_args.dirs, "Run directories to combine: every shard of the study, each once")
+      ->required();
+  merge->add_option("--out", merge_args.out, "The complete run directory to write (new, empty, or of this study)")
+      ->required();
+
+  std::string report_dir;
+  auto* report = app.add_subcommand("report", "Figures (gnuplot) and a report page, DIR/report/report.md, from a finished run");
+  report->add_option("dir", report_dir, "Run directory")->required();
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -71,6 +85,8 @@ int main(int argc, char** argv) {
     if (*check) return check_command(study_file);
     if (*draw) return draw_command(study_file, out);
     if (*answer) return answer_command(answer_args);
+    if (*merge) return merge_command(merge_args);
+    if (*report) return report_command(report_dir);
   } catch (const io::InputError& e) {
     std::fprintf(stderr, "error: %s\n", e.what());
     return 2;

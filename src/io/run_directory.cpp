@@ -26,32 +26,39 @@ std::vector<std::size_t> shard_units(std::size_t total, const Shard& shard) {
 
 std::string study_hash(const std::string& resolved) { return fmt::format("{:016x}", name_key(resolved)); }
 
-namespace {
-
-void claim_directory(const std::filesystem::path& dir, const std::string& resolved) {
+void check_directory_claim(const std::filesystem::path& dir, const std::string& resolved) {
   const auto resolved_file = dir / "study.resolved.yaml";
+  if (std::filesystem::exists(dir) && !std::filesystem::is_directory(dir))
+    throw std::runtime_error(dir.string() + " exists and is not a directory; choose another --out directory");
   if (std::filesystem::exists(resolved_file)) {
-    if (read_file(resolved_file) != resolved)
+    const std::string theirs = read_file(resolved_file);
+    if (theirs != resolved)
       throw std::runtime_error(fmt::format(
           "{} holds a different study (its study.resolved.yaml has hash {}, this study {}); choose another --out "
           "directory",
-          dir.string(), study_hash(read_file(resolved_file)), study_hash(resolved)));
+          dir.string(), study_hash(theirs), study_hash(resolved)));
     return;
   }
   if (std::filesystem::exists(dir) && !std::filesystem::is_empty(dir))
     throw std::runtime_error(dir.string() + " exists, is not empty and is not a dobudget run directory; choose another --out directory");
+}
+
+void claim_directory(const std::filesystem::path& dir, const std::string& resolved) {
+  check_directory_claim(dir, resolved);
+  const auto resolved_file = dir / "study.resolved.yaml";
+  if (std::filesystem::exists(resolved_file)) return;
   std::filesystem::create_directories(dir);
   write_file_atomically(resolved_file, resolved);
 }
 
-std::string utc_now() {
+std::string utc_timestamp() {
   const std::time_t t = std::time(nullptr);
+  std::tm utc{};
+  ::gmtime_r(&t, &utc);
   char buf[32];
-  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", std::gmtime(&t));
+  std::strftime(buf, sizeof buf, "%Y-%m-%dT%H:%M:%SZ", &utc);
   return buf;
 }
-
-}  // namespace
 
 void write_run_tables(const std::filesystem::path& dir, const std::vector<RunRecord>& rows) {
   write_file_atomically(dir / "runs.csv", runs_csv(rows));
@@ -99,8 +106,7 @@ PlanOutcome plan_study(const Study& study, const std::string& resolved, const Pl
   return out;
 }
 
-void write_manifest(const std::filesystem::path& dir, const Study& study, const std::string& resolved,
-                    const PlanOptions& opt, const PlanOutcome& outcome) {
+nlohmann::ordered_json manifest_base(const Study& study, const std::string& resolved) {
   nlohmann::ordered_json j;
   j["program"] = "dobudget";
   j["version"] = DOBUDGET_VERSION;
@@ -117,19 +123,26 @@ void write_manifest(const std::filesystem::path& dir, const Study& study, const 
                     {"nlohmann_json", fmt::format("{}.{}.{}", NLOHMANN_JSON_VERSION_MAJOR, NLOHMANN_JSON_VERSION_MINOR,
                                                   NLOHMANN_JSON_VERSION_PATCH)},
                     {"compiler", __VERSION__}};
+  const std::vector<UnitId> units = enumerate_units(study);
   std::size_t fits = 0;
-  for (const auto& u : enumerate_units(study))
+  for (const auto& u : units)
     fits += static_cast<std::size_t>(fits_per_unit(study.scenarios[static_cast<std::size_t>(u.scenario)].settings));
   j["scenarios"] = study.scenarios.size();
-  j["units"] = enumerate_units(study).size();
+  j["units"] = units.size();
   j["fits"] = fits;
+  return j;
+}
+
+void write_manifest(const std::filesystem::path& dir, const Study& study, const std::string& resolved,
+                    const PlanOptions& opt, const PlanOutcome& outcome) {
+  nlohmann::ordered_json j = manifest_base(study, resolved);
   if (opt.shard) j["shard"] = fmt::format("{}/{}", opt.shard->index, opt.shard->count);
   j["threads"] = opt.threads;
   j["units_in_this_directory"] = outcome.units_done;
   j["units_resumed"] = outcome.units_resumed;
   j["complete"] = outcome.complete;
   j["wall_seconds"] = outcome.seconds;
-  j["finished_utc"] = utc_now();
+  j["finished_utc"] = utc_timestamp();
   write_file_atomically(dir / "manifest.json", j.dump(2) + "\n");
 }
 

@@ -3,6 +3,8 @@
 // A directory made by a different study is refused; a second `plan` on the same directory
 // computes only the units its journal lacks.
 #pragma once
+#include <nlohmann/json_fwd.hpp>
+
 #include <filesystem>
 #include <functional>
 #include <optional>
@@ -58,6 +60,14 @@ struct PlanOutcome {
 // Hash identifying a study: FNV-1a of its resolved YAML, as 16 hex digits.
 std::string study_hash(const std::string& resolved_yaml);
 
+// Checks, writing nothing, that `dir` may hold a run directory of this study: it does not exist,
+// is an empty directory, or is a run directory whose study.resolved.yaml has exactly these bytes.
+// Throws std::runtime_error naming the directory (and both study hashes when the study differs).
+void check_directory_claim(const std::filesystem::path& dir, const std::string& resolved_yaml);
+
+// check_directory_claim, then creates the directory and writes study.resolved.yaml if missing.
+void claim_directory(const std::filesystem::path& dir, const std::string& resolved_yaml);
+
 // Creates the directory (or checks that it belongs to this study), runs the missing units and,
 // when the study is complete (and not sharded), writes runs.csv and timings.csv.
 // Throws std::runtime_error for a directory that belongs to another study.
@@ -65,6 +75,13 @@ PlanOutcome plan_study(const Study& study, const std::string& resolved_yaml, con
 
 // Writes runs.csv and timings.csv (atomically) for rows in canonical order.
 void write_run_tables(const std::filesystem::path& dir, const std::vector<RunRecord>& rows);
+
+// The manifest.json fields every run directory shares: program, version, study, study_hash, seed,
+// seeding, libraries, scenarios, units, fits. write_manifest (and merge) add their own after these.
+nlohmann::ordered_json manifest_base(const Study& study, const std::string& resolved_yaml);
+
+// The current time in UTC as "YYYY-MM-DDTHH:MM:SSZ" (manifest.json's finished_utc).
+std::string utc_timestamp();
 
 // Writes manifest.json: versions, seeds, study hash, units, fits, shard, threads and timings.
 void write_manifest(const std::filesystem::path& dir, const Study& study, const std::string& resolved_yaml,

@@ -2,6 +2,8 @@
 
 #include <fmt/format.h>
 
+#include <charconv>
+#include <limits>
 #include <sstream>
 #include <stdexcept>
 
@@ -26,9 +28,20 @@ std::vector<std::string> split(const std::string& line) {
   return cells;
 }
 
+// Exact text to double (std::from_chars: no locale, and subnormals read back, unlike std::stod).
+double parse_double(const std::string& s) {
+  double x = 0.0;
+  if (s == "inf") return std::numeric_limits<double>::infinity();
+  if (s == "-inf") return -std::numeric_limits<double>::infinity();
+  if (s == "nan") return std::numeric_limits<double>::quiet_NaN();
+  const auto [end, ec] = std::from_chars(s.data(), s.data() + s.size(), x);
+  if (ec != std::errc() || end != s.data() + s.size()) throw std::runtime_error("malformed number '" + s + "'");
+  return x;
+}
+
 std::optional<double> parse_optional(const std::string& s) {
   if (s.empty()) return std::nullopt;
-  return std::stod(s);
+  return parse_double(s);
 }
 
 std::string keys(const RunRecord& r) {
@@ -57,7 +70,7 @@ RunRecord parse_runs_line(const std::string& line) {
     r.pilot = std::stoi(c[5]);
     r.model_kl = parse_optional(c[6]);
     r.return_gap = parse_optional(c[7]);
-    r.loglik = std::stod(c[8]);
+    r.loglik = parse_double(c[8]);
     r.iterations = std::stoi(c[9]);
     r.converged = c[10] == "1";
     r.note = c[11];
@@ -102,7 +115,7 @@ std::vector<RunRecord> read_runs(const std::filesystem::path& file) {
     for (auto& r : rows) {
       if (!std::getline(tin, line)) break;
       const auto c = split(line);
-      if (c.size() == 7) r.fit_seconds = std::stod(c[6]);
+      if (c.size() == 7) r.fit_seconds = parse_double(c[6]);
     }
   }
   return rows;

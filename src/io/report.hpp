@@ -1,0 +1,110 @@
+// `dobudget report DIR` (design.md sec. 5, 7): figures and a report page from a finished run
+// directory, with no simulation.
+//
+// It reads DIR/study.resolved.yaml and DIR/runs.csv, computes the answers (compute_study_answers,
+// with the study's targets and assurance unless overridden) and writes DIR/report/:
+//
+//   report.md                          the page: study, scenarios and their swept values, the answer
+//                                      tables, the figures, a link to ../study.resolved.yaml and
+//                                      the caution. Plain Markdown; images by relative path.
+//   scenario-<i>-<measure>.dat         the per-cell summary of the measure (summarise(), summary.hpp)
+//   scenario-<i>-<measure>.gp          gnuplot script drawing it ...
+//   scenario-<i>-<measure>.png         ... : x = pilot episodes (log scale), y = the measure (log
+//                                      scale for model_kl); the median of each strategy at each
+//                                      logged budget with its q10-q90 band shaded; the target as a
+//                                      horizontal line.
+//   scenario-<i>-<measure>-success.*   the raw success fraction (success_curve.hpp) against pilot
+//                                      episodes, with the assurance as a horizontal line. Only for
+//                                      measures that have a target in that scenario.
+//
+// Which lines a figure draws (every cell is in the .dat file all the same): pilot-only once, at
+// the smallest logged budget where it has records (it ignores logged data), and every other
+// strategy at its largest logged budget, as solid lines with bands; the other strategies at the
+// other logged budgets as dashed lines without band, except logged 0 when pilot-only is drawn
+// (there every strategy is the pilot-only fit). A figure without any drawable value (e.g.
+// return_gap missing everywhere) is left out and the page says so.
+//
+// .dat files: whitespace-separated columns, '#' comments, one block per (strategy, logged) in the
+// order of the runs, blocks separated by two blank lines (gnuplot `index`; pandas:
+// read_csv(f, sep=r"\s+", comment="#", header=None)). Numbers are the shortest text that reads back
+// to the same double; a non-finite statistic (no value, or an infinite one) is written "NaN".
+// The .gp scripts use paths relative to report/: `cd DIR/report && gnuplot scenario-0-model_kl.gp`
+// redraws a figure after editing its script.
+//
+// gnuplot runs as a child process (one per figure, through /bin/sh with every path single-quoted).
+// Terminal: pngcairo when the installed gnuplot has it, else png, else svg (images .png or .svg).
+// Everything is written to a temporary folder DIR/.report.tmp.<pid> and renamed to DIR/report at
+// the end (an older report/ is replaced only then), so a failed run leaves no half-written
+// report/ and leaves an earlier report as it was.
+#pragma once
+#include <filesystem>
+#include <optional>
+#include <stdexcept>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "core/answer.hpp"
+#include "core/measure.hpp"
+#include "core/success_curve.hpp"
+#include "core/summary.hpp"
+
+namespace dobudget::io {
+
+// Input the user must fix (not a run directory, runs.csv missing, gnuplot missing): the command
+// line reports it with exit code 2.
+struct ReportError : std::runtime_error {
+  using std::runtime_error::runtime_error;
+};
+
+struct ReportOptions {
+  std::string gnuplot = "gnuplot";  // a program name searched on PATH, or a path to it
+  std::string terminal;             // empty: pngcairo, else png, else svg, as the gnuplot has them
+  bool render = true;               // false: write data, scripts and report.md but do not run gnuplot
+  AnswerOverrides overrides;        // targets and assurance for the answers and the figures
+};
+
+struct ReportFigure {
+  int scenario = 0;
+  Measure measure = Measure::model_kl;
+  bool success = false;      // false: the measure against pilot; true: the success fraction
+  std::string image;         // file names inside report/
+  std::string script;
+  std::string data;
+  bool rendered = false;     // the image was made (render == true)
+};
+
+struct ReportOutcome {
+  std::filesystem::path dir;   // DIR/report
+  std::filesystem::path page;  // DIR/report/report.md
+  std::string terminal;        // the gnuplot terminal used
+  std::vector<ReportFigure> figures;
+  std::vector<std::string> skipped;  // figures left out, with the reason
+};
+
+// Writes DIR/report/ as described above. Throws ReportError for a directory that is not a run
+// directory, a missing runs.csv, a missing gnuplot (naming the Debian package) or a gnuplot without
+// a usable terminal; io::InputError for a malformed study.resolved.yaml; std::runtime_error when
+// gnuplot fails on a script (its messages included) or a file cannot be written.
+ReportOutcome write_report(const std::filesystem::path& run_dir, const ReportOptions& options = {});
+
+// ---- pieces, exposed for tests --------------------------------------------------------------
+
+// The text of a .dat file for the cells of one scenario and measure (as summarise() gives them).
+// `title` goes into the header comment.
+std::string summary_dat(const std::vector<CellSummary>& cells, std::string_view title);
+// The same for success fractions: columns strategy logged pilot pairs successes fraction.
+std::string success_dat(const std::vector<SuccessCell>& cells, std::string_view title);
+
+// 'text' quoted for /bin/sh: single quotes, each embedded ' written '\''.
+std::string shell_quote(std::string_view text);
+
+// The program as run: a name without '/' is searched on PATH; a path must be an executable file.
+std::optional<std::filesystem::path> find_program(const std::string& program);
+
+// Terminals the gnuplot has (GPVAL_TERMINALS), and the preferred one among them (pngcairo, png,
+// svg; empty when none).
+std::vector<std::string> gnuplot_terminals(const std::filesystem::path& gnuplot);
+std::string choose_terminal(const std::vector<std::string>& available);
+
+}  // namespace dobudget::io
