@@ -1,10 +1,16 @@
 // dobudget plan: simulate a study into a run directory (resumable), print the results and the answer.
+// In an MPI build (DOBUDGET_WITH_MPI) under `mpirun -n P` with P > 1, every rank loads the study,
+// rank 0 plans and prints as below with the MPI executor, and the other ranks compute the units it
+// hands out and print nothing (src/mpi/mpi_executor.hpp). With one rank it is the plain path.
 #include <fmt/format.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <atomic>
 #include <csignal>
 #include <cstdio>
+#include <exception>
+#include <optional>
 #include <thread>
 
 #include "cli/commands.hpp"
@@ -14,6 +20,9 @@
 #include "io/run_directory.hpp"
 #include "io/study_file.hpp"
 #include "io/summary_table.hpp"
+#ifdef DOBUDGET_WITH_MPI
+#include "mpi/mpi_executor.hpp"
+#endif
 
 namespace dobudget::cli {
 namespace {
@@ -44,23 +53,15 @@ std::string progress_line(const io::Progress& p) {
                      p.elapsed_seconds, eta);
 }
 
-}  // namespace
-
-int plan_command(const PlanArgs& args) {
-  const std::string& study_file = args.study;
-  const std::string& out = args.out;
-  const std::string& shard_text = args.shard;
-  const int threads = args.threads;
-  const bool quiet = args.quiet;
-  const Study study = io::load_study(study_file);
-  const std::string resolved = io::resolved_yaml(study);
+// Where and how to plan: run directory, threads (default_thread_count when --threads is not
+// given), shard, progress messages and interruption. Throws BadInput for a malformed --shard.
+io::PlanOptions plan_options(const PlanArgs& args, const Study& study, int default_thread_count) {
   io::PlanOptions opt;
-  opt.out = out.empty() ? std::filesystem::path("runs") / study.name : std::filesystem::path(out);
-  opt.threads = threads > 0 ? threads : default_threads();
-  if (!shard_text.empty()) opt.shard = parse_shard(shard_text);
+  opt.out = args.out.empty() ? std::filesystem::path("runs") / study.name : std::filesystem::path(args.out);
+  opt.threads = args.threads > 0 ? args.threads : default_thread_count;
+  if (!args.shard.empty()) opt.shard = parse_shard(args.shard);
   const bool tty = ::isatty(::fileno(stderr)) != 0;
-  double last = -1.0;
-  opt.on_progress = [&](const io::Progress& p) {
+  opt.on_progress = [quiet = args.quiet, tty, last = -1.0](const io::Progress& p) mutable {
     if (quiet) return;
     if (tty) {
       std::fprintf(stderr, "\r%s   ", progress_line(p).c_str());
@@ -70,12 +71,25 @@ int plan_command(const PlanArgs& args) {
     }
   };
   opt.stop_requested = [] { return interrupted.load(); };
+  return opt;
+}
+
+void catch_interruptions() {
   std::signal(SIGINT, on_interrupt);
   std::signal(SIGTERM, on_interrupt);
+}
 
+// Plans (with opt.executor when set), writes the run directory and prints the results and the
+// answer. `ranks`: the MPI ranks taking part (1 without MPI).
+int plan_and_report(const Study& study, const std::string& resolved, const io::PlanOptions& opt, bool quiet,
+                    int ranks) {
+  const bool tty = ::isatty(::fileno(stderr)) != 0;
   if (!quiet)
-    std::fprintf(stderr, "dobudget plan: study '%s', %zu scenario(s), %zu units, %d thread(s), writing %s\n",
-                 study.name.c_str(), study.scenarios.size(), enumerate_units(study).size(), opt.threads,
+    std::fprintf(stderr, "dobudget plan: study '%s', %zu scenario(s), %zu units, %s, writing %s\n",
+                 study.name.c_str(), study.scenarios.size(), enumerate_units(study).size(),
+                 (ranks == 1 ? fmt::format("{} thread(s)", opt.threads)
+                             : fmt::format("{} MPI ranks x {} thread(s)", ranks, opt.threads))
+                     .c_str(),
                  opt.out.string().c_str());
   const io::PlanOutcome outcome = io::plan_study(study, resolved, opt);
   if (tty && !quiet) std::fprintf(stderr, "\n");
@@ -97,12 +111,81 @@ int plan_command(const PlanArgs& args) {
   std::printf("%s", io::format_summary(study, outcome.rows).c_str());
   const auto answers = compute_study_answers(study, outcome.rows);
   io::write_answer_files(opt.out, study, answers);
-  std::printf("\n%s", io::format_answer_table(answers).c_str());
+  std::printf("\n%s", io::format_answer_table(answers, &study).c_str());
   std::printf("\nrun directory: %s (runs.csv, answer.csv, answer.md, manifest.json); %zu units in %.1f s%s\n",
               opt.out.string().c_str(), outcome.units_done, outcome.seconds,
               outcome.units_resumed ? fmt::format(" ({} resumed)", outcome.units_resumed).c_str() : "");
   std::printf("\n%s\n", caution);
   return 0;
+}
+
+#ifdef DOBUDGET_WITH_MPI
+// mpirun -n P, P > 1. Every rank loads the study and agrees that all could before any work starts
+// (a bad study is reported once, by rank 0, with exit code 2 on every rank; a rank that alone
+// fails reports its own error). Then rank 0 plans with the MPI executor, the others serve it.
+int plan_on_ranks(const PlanArgs& args, const mpi::Session& session) {
+  std::optional<Study> study;
+  std::string resolved;
+  io::PlanOptions opt;
+  std::exception_ptr error;
+  try {
+    study = io::load_study(args.study);
+    resolved = io::resolved_yaml(*study);
+    // --threads is per rank; by default the ranks on a node share its cores.
+    opt = plan_options(args, *study, std::max(1, default_threads() / session.ranks_on_this_node()));
+  } catch (...) {
+    error = std::current_exception();
+  }
+  const mpi::Session::Agreement agreed = session.agree(!error);
+  // mpirun and schedulers signal every rank: rank 0 then stops handing out units and collects the
+  // ones in flight, which the other ranks finish instead of dying with them.
+  catch_interruptions();
+  if (session.rank() == 0) {
+    if (error) std::rethrow_exception(error);  // reported by main, exactly as without MPI
+    if (!agreed.all_ok) throw std::runtime_error("another MPI rank could not load the study (its error is shown above)");
+    mpi::Coordinator coordinator(session);
+    opt.executor = [&coordinator](const Study& s, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo,
+                                  int threads, const RunnerHooks& hooks) { coordinator(s, units, todo, threads, hooks); };
+    try {
+      const int code = plan_and_report(*study, resolved, opt, args.quiet, session.size());
+      coordinator.release_workers();
+      if (!args.quiet)
+        std::fprintf(stderr, "units computed by MPI ranks 0..%d: %s\n", session.size() - 1,
+                     fmt::format("{}", fmt::join(coordinator.units_by_rank(), " ")).c_str());
+      return code;
+    } catch (...) {
+      coordinator.release_workers();  // e.g. a directory of another study: no unit was handed out
+      throw;
+    }
+  }
+  if (error) {
+    if (agreed.root_ok) {
+      try {
+        std::rethrow_exception(error);
+      } catch (const std::exception& e) {
+        std::fprintf(stderr, "error (MPI rank %d): %s\n", session.rank(), e.what());
+      }
+    }
+    return 2;
+  }
+  if (!agreed.all_ok) return 2;
+  mpi::serve_as_worker(*study, opt.threads);
+  return 0;
+}
+#endif
+
+}  // namespace
+
+int plan_command(const PlanArgs& args) {
+#ifdef DOBUDGET_WITH_MPI
+  const mpi::Session session;  // MPI_Init_thread here, MPI_Finalize on the way out
+  if (session.size() > 1) return plan_on_ranks(args, session);
+#endif
+  const Study study = io::load_study(args.study);
+  const std::string resolved = io::resolved_yaml(study);
+  const io::PlanOptions opt = plan_options(args, study, default_threads());
+  catch_interruptions();
+  return plan_and_report(study, resolved, opt, args.quiet, 1);
 }
 
 }  // namespace dobudget::cli

@@ -1,0 +1,396 @@
+#include "mpi/mpi_executor.hpp"
+
+#include <fmt/format.h>
+#include <mpi.h>
+
+#include <algorithm>
+#include <atomic>
+#include <chrono>
+#include <condition_variable>
+#include <cstdio>
+#include <deque>
+#include <exception>
+#include <map>
+#include <memory>
+#include <mutex>
+#include <optional>
+#include <stdexcept>
+#include <string>
+#include <thread>
+#include <utility>
+
+#include "io/journal.hpp"
+
+namespace dobudget::mpi {
+namespace {
+
+enum Tag : int { ready_tag = 1, assign_tag = 2, result_tag = 3, stop_tag = 4 };
+
+// One DrawContext per (scenario, draw), built by whichever thread of this process needs it first.
+class DrawContextCache {
+ public:
+  const DrawContext& get(const Study& study, const UnitId& u) {
+    Slot* slot = nullptr;
+    {
+      std::lock_guard lock(mutex_);
+      auto& p = slots_[{u.scenario, u.draw}];
+      if (!p) p = std::make_unique<Slot>();
+      slot = p.get();
+    }
+    std::call_once(slot->once, [&] { slot->context = make_draw_context(study, u.scenario, u.draw); });
+    return slot->context;
+  }
+
+ private:
+  struct Slot {
+    std::once_flag once;
+    DrawContext context;
+  };
+  std::mutex mutex_;
+  std::map<std::pair<int, int>, std::unique_ptr<Slot>> slots_;
+};
+
+// A RESULT message is the unit's units.journal record (io/journal.hpp): "<unit index> TAB <CRC-32>
+// TAB <rows>" LF, each row a runs.csv line and ",<fit_seconds>" in the shortest text that reads
+// back to the same double, so a unit computed on another rank is recorded exactly as if computed
+// here, and a message garbled in transit is caught by the checksum.
+std::pair<std::size_t, std::vector<RunRecord>> decode_result(const std::string& text, const std::vector<UnitId>& units,
+                                                             int rank) {
+  std::size_t intact = 0;
+  bool torn = false;
+  const std::string source = fmt::format("MPI result from rank {}", rank);
+  auto records = io::Journal::parse(text, &intact, &torn, source);
+  if (torn || records.size() != 1 || intact != text.size())
+    throw std::runtime_error(source + ": not one intact unit record");
+  auto& [index, rows] = *records.begin();
+  if (index >= units.size()) throw std::runtime_error(fmt::format("{}: unit {} does not exist", source, index));
+  const UnitId& u = units[index];
+  for (const auto& r : rows)
+    if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
+      throw std::runtime_error(fmt::format("{}: the record of unit {} holds a row of another unit", source, index));
+  return {index, std::move(rows)};
+}
+
+using Clock = std::chrono::steady_clock;
+using Micros = std::chrono::microseconds;
+
+// Sleep between polls: 50 us right after a message, doubling while nothing happens, up to a cap.
+class Backoff {
+ public:
+  void reset() { wait_ = Micros(50); }
+  Micros next(Micros cap) {
+    const Micros w = std::min(wait_, cap);
+    wait_ = std::min(wait_ * 2, cap);
+    return w;
+  }
+
+ private:
+  Micros wait_{50};
+};
+
+// Rank 0's cap: 1% of the mean unit time, within [1 ms, 10 ms]. Every wake-up costs the core it
+// shares with a compute thread (measured: about 50 us in a virtual machine here, so polling every
+// 200 us slowed units by 20%), while a longer cap delays a worker's next unit by half the cap on
+// average: 1% of a unit balances the two (units of about 1 s: 0.5% each).
+Micros poll_cap(double mean_unit_seconds) {
+  const auto cap = static_cast<long long>(mean_unit_seconds * 1e6 / 100);
+  return Micros(std::clamp<long long>(cap, 1000, 10000));
+}
+
+double seconds_since(Clock::time_point t) { return std::chrono::duration<double>(Clock::now() - t).count(); }
+
+std::string what(const std::exception_ptr& e) {
+  try {
+    std::rethrow_exception(e);
+  } catch (const std::exception& x) {
+    return x.what();
+  } catch (...) {
+    return "unknown exception";
+  }
+}
+
+// Reports and ends every rank of the job: used where waiting for a clean stop could hang.
+[[noreturn]] void abort_job(int rank, const std::string& message) {
+  std::fprintf(stderr, "error (MPI rank %d): %s; aborting the MPI job\n", rank, message.c_str());
+  std::fflush(stderr);
+  MPI_Abort(MPI_COMM_WORLD, 1);
+  std::abort();  // not reached
+}
+
+}  // namespace
+
+// ---------------------------------------------------------------------------------------------
+// Session
+
+Session::Session() {
+  int provided = 0;
+  MPI_Init_thread(nullptr, nullptr, MPI_THREAD_FUNNELED, &provided);
+  MPI_Comm_rank(MPI_COMM_WORLD, &rank_);
+  MPI_Comm_size(MPI_COMM_WORLD, &size_);
+  if (provided < MPI_THREAD_FUNNELED) abort_job(rank_, "the MPI library does not provide MPI_THREAD_FUNNELED");
+  MPI_Comm node;
+  MPI_Comm_split_type(MPI_COMM_WORLD, MPI_COMM_TYPE_SHARED, 0, MPI_INFO_NULL, &node);
+  MPI_Comm_size(node, &node_size_);
+  MPI_Comm_free(&node);
+}
+
+Session::~Session() { MPI_Finalize(); }
+
+Session::Agreement Session::agree(bool ok) const {
+  int mine[2] = {rank_ == 0 ? static_cast<int>(ok) : 1, static_cast<int>(ok)};
+  int all[2] = {0, 0};
+  MPI_Allreduce(mine, all, 2, MPI_INT, MPI_MIN, MPI_COMM_WORLD);
+  return {all[0] == 1, all[1] == 1};
+}
+
+// ---------------------------------------------------------------------------------------------
+// Rank 0
+
+Coordinator::Coordinator(const Session& session)
+    : size_(session.size()), units_by_rank_(static_cast<std::size_t>(session.size()), 0) {}
+
+void Coordinator::release_workers() {
+  if (!workers_stopped_) (*this)(Study{}, {}, {}, 1, RunnerHooks{});
+}
+
+void Coordinator::operator()(const Study& study, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo,
+                             int threads, const RunnerHooks& hooks) {
+  if (workers_stopped_) {  // a second call: the workers are gone, this process computes alone
+    run_units(study, units, todo, threads, hooks);
+    return;
+  }
+  // The queue, the first failure, unit times and on_unit: all under one mutex.
+  std::mutex mutex;
+  std::size_t next = 0;
+  std::exception_ptr failure;
+  double unit_seconds = 0.0;  // summed over finished units (remote: from ASSIGN to RESULT)
+  std::size_t units_timed = 0;
+  auto take = [&]() -> std::optional<std::size_t> {
+    std::lock_guard lock(mutex);
+    if (failure || next >= todo.size() || (hooks.stop_requested && hooks.stop_requested())) return std::nullopt;
+    return todo[next++];
+  };
+  auto fail = [&](std::exception_ptr e) {
+    std::lock_guard lock(mutex);
+    if (!failure) failure = std::move(e);
+  };
+  auto deliver = [&](int rank, std::size_t index, std::vector<RunRecord>&& rows, double seconds) {
+    std::lock_guard lock(mutex);
+    ++units_by_rank_[static_cast<std::size_t>(rank)];
+    unit_seconds += seconds;
+    ++units_timed;
+    try {
+      if (hooks.on_unit) hooks.on_unit(index, std::move(rows));
+    } catch (...) {
+      if (!failure) failure = std::current_exception();
+    }
+  };
+
+  // Rank 0's own compute threads.
+  DrawContextCache cache;
+  std::vector<std::thread> pool;
+  const int local_threads = todo.empty() ? 0 : std::max(1, threads);
+  for (int t = 0; t < local_threads; ++t)
+    pool.emplace_back([&] {
+      try {
+        while (const auto i = take()) {
+          const auto start = Clock::now();
+          auto rows = run_unit(study, units[*i], cache.get(study, units[*i]));
+          deliver(0, *i, std::move(rows), seconds_since(start));
+        }
+      } catch (...) {
+        fail(std::current_exception());
+      }
+    });
+
+  // The main thread serves the other ranks until every one of them has been stopped.
+  struct Peer {
+    int slots = 0;
+    int in_flight = 0;
+  };
+  std::vector<Peer> peers(static_cast<std::size_t>(size_));
+  std::map<std::size_t, std::pair<int, Clock::time_point>> assigned;  // remote units in flight: rank, ASSIGN time
+  int stopped = 0;
+  auto refill = [&](int rank) {
+    Peer& p = peers[static_cast<std::size_t>(rank)];
+    while (p.in_flight < p.slots) {
+      const auto i = take();
+      if (!i) break;
+      const unsigned long long index = *i;
+      MPI_Send(&index, 1, MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
+      assigned[*i] = {rank, Clock::now()};
+      ++p.in_flight;
+    }
+    if (p.in_flight == 0) {
+      MPI_Send(nullptr, 0, MPI_BYTE, rank, stop_tag, MPI_COMM_WORLD);
+      ++stopped;
+    }
+  };
+  try {
+    Backoff backoff;
+    while (stopped < size_ - 1) {
+      int flag = 0;
+      MPI_Status status;
+      MPI_Iprobe(MPI_ANY_SOURCE, MPI_ANY_TAG, MPI_COMM_WORLD, &flag, &status);
+      if (!flag) {
+        double mean = 0.0;
+        {
+          std::lock_guard lock(mutex);
+          if (units_timed > 0) mean = unit_seconds / static_cast<double>(units_timed);
+        }
+        std::this_thread::sleep_for(backoff.next(poll_cap(mean)));
+        continue;
+      }
+      backoff.reset();
+      const int rank = status.MPI_SOURCE;
+      Peer& p = peers[static_cast<std::size_t>(rank)];
+      if (status.MPI_TAG == ready_tag) {
+        int slots = 0;
+        MPI_Recv(&slots, 1, MPI_INT, rank, ready_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+        p.slots = std::max(1, slots);
+      } else if (status.MPI_TAG == result_tag) {
+        int count = 0;
+        MPI_Get_count(&status, MPI_CHAR, &count);
+        std::string text(static_cast<std::size_t>(count), '\0');
+        MPI_Recv(text.data(), count, MPI_CHAR, rank, result_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+        --p.in_flight;
+        try {
+          auto [index, rows] = decode_result(text, units, rank);
+          const auto sent = assigned.find(index);
+          if (sent == assigned.end() || sent->second.first != rank)
+            throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, index));
+          const double seconds = seconds_since(sent->second.second);
+          assigned.erase(sent);
+          deliver(rank, index, std::move(rows), seconds);
+        } catch (...) {
+          fail(std::current_exception());
+        }
+      } else {
+        throw std::runtime_error(fmt::format("unexpected MPI message (tag {}) from rank {}", status.MPI_TAG, rank));
+      }
+      refill(rank);
+    }
+  } catch (const std::exception& e) {
+    abort_job(0, e.what());  // the protocol itself broke: nobody can be stopped cleanly
+  }
+  for (auto& t : pool) t.join();
+  workers_stopped_ = true;
+  if (failure) std::rethrow_exception(failure);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Ranks 1..P-1
+
+void serve_as_worker(const Study& study, int threads) {
+  int rank = 0;
+  MPI_Comm_rank(MPI_COMM_WORLD, &rank);
+  try {
+    const std::vector<UnitId> units = enumerate_units(study);
+    const int slots = std::max(1, threads);
+    MPI_Send(&slots, 1, MPI_INT, 0, ready_tag, MPI_COMM_WORLD);
+
+    std::mutex mutex;
+    std::condition_variable work_ready, result_ready;
+    std::deque<std::size_t> queue;   // assigned, not started
+    std::deque<std::string> outbox;  // finished, encoded, not sent
+    std::exception_ptr failure;
+    bool closed = false;
+    DrawContextCache cache;
+    std::vector<std::thread> pool;
+    for (int t = 0; t < slots; ++t)
+      pool.emplace_back([&] {
+        while (true) {
+          std::size_t index = 0;
+          {
+            std::unique_lock lock(mutex);
+            work_ready.wait(lock, [&] { return closed || !queue.empty(); });
+            if (queue.empty()) return;
+            index = queue.front();
+            queue.pop_front();
+          }
+          try {
+            const UnitId& u = units[index];
+            std::string text = io::Journal::record(index, run_unit(study, u, cache.get(study, u)));
+            std::lock_guard lock(mutex);
+            outbox.push_back(std::move(text));
+          } catch (...) {
+            const std::string message =
+                fmt::format("unit (scenario {}, environment {}, replicate {}): {}", units[index].scenario,
+                            units[index].draw, units[index].replicate, what(std::current_exception()));
+            std::lock_guard lock(mutex);
+            if (!failure) failure = std::make_exception_ptr(std::runtime_error(message));
+          }
+          result_ready.notify_one();
+        }
+      });
+
+    Backoff backoff;
+    bool stop = false;
+    int held = 0;  // units assigned to this rank and not yet sent back
+    try {          // inside the pool's scope: abort the job before joinable threads would be destroyed
+      while (!stop) {
+        std::deque<std::string> finished;
+        std::exception_ptr error;
+        {
+          std::lock_guard lock(mutex);
+          finished.swap(outbox);
+          error = failure;
+        }
+        for (const auto& text : finished)
+          MPI_Send(text.data(), static_cast<int>(text.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD);
+        held -= static_cast<int>(finished.size());
+        if (error)
+          abort_job(rank, what(error) +
+                              " (the units finished so far are in units.journal: run the same command again "
+                              "to compute only the missing ones)");
+
+        int flag = 0;
+        MPI_Status status;
+        MPI_Iprobe(0, MPI_ANY_TAG, MPI_COMM_WORLD, &flag, &status);
+        if (flag) {
+          backoff.reset();
+          if (status.MPI_TAG == assign_tag) {
+            unsigned long long index = 0;
+            MPI_Recv(&index, 1, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            if (index >= units.size())
+              abort_job(rank, fmt::format("rank 0 assigned unit {}, which does not exist", index));
+            {
+              std::lock_guard lock(mutex);
+              queue.push_back(static_cast<std::size_t>(index));
+            }
+            ++held;
+            work_ready.notify_one();
+          } else if (status.MPI_TAG == stop_tag) {
+            MPI_Recv(nullptr, 0, MPI_BYTE, 0, stop_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            stop = true;  // rank 0 stops a worker only when it has nothing in flight
+          } else {
+            abort_job(rank, fmt::format("unexpected MPI message (tag {}) from rank 0", status.MPI_TAG));
+          }
+          continue;
+        }
+        if (!finished.empty()) backoff.reset();
+        // Wake for a finished unit at once. With every slot holding a unit no message can come
+        // (rank 0 writes to a worker only to fill a free slot, or to stop one holding nothing), so
+        // wait for nothing else; otherwise a reply is due soon: poll for it.
+        const auto done = [&] { return !outbox.empty() || failure != nullptr; };
+        std::unique_lock lock(mutex);
+        if (held == slots)
+          result_ready.wait(lock, done);
+        else
+          result_ready.wait_for(lock, backoff.next(Micros(1000)), done);
+      }
+    } catch (const std::exception& e) {
+      abort_job(rank, e.what());
+    }
+    {
+      std::lock_guard lock(mutex);
+      closed = true;
+    }
+    work_ready.notify_all();
+    for (auto& t : pool) t.join();
+  } catch (const std::exception& e) {
+    abort_job(rank, e.what());
+  }
+}
+
+}  // namespace dobudget::mpi

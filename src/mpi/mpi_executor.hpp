@@ -1,0 +1,112 @@
+// Running the units of `dobudget plan` on MPI ranks (design.md sec. 6; issue 5). Compiled only in
+// MPI builds (DOBUDGET_WITH_MPI); nothing outside src/mpi includes <mpi.h>.
+//
+//   mpirun -n P dobudget plan STUDY.yaml --out DIR [--threads T] [--shard K/N]
+//
+// Every rank parses the same command line and loads the same study. Rank 0 runs plan_study as a
+// single process would, with the Coordinator below as PlanOptions::executor: it alone touches the
+// run directory (journal, tables, manifest) and prints. Ranks 1..P-1 run serve_as_worker and print
+// nothing but their own fatal errors. Results do not depend on P: a unit's random streams are
+// keyed by the unit, and its rows travel as the journal's text, which reads back to the same doubles.
+//
+// Dynamic distribution ("who finishes early takes more"). Units are handed out one at a time, in
+// the order of `todo` (canonical order), from one queue on rank 0. Rank 0 computes too: T local
+// threads take units from that queue and deliver them directly, while rank 0's main thread serves
+// the other ranks (MPI_THREAD_FUNNELED: only main threads call MPI). A worker rank runs T compute
+// threads and keeps at most T units at a time: one per thread, none queued ahead, so the tail of a
+// run is balanced to within one unit per thread. Each process builds a DrawContext once per
+// (scenario, draw) it meets and shares it between its threads. Why rank 0 computes: with a
+// dedicated coordinator, 2 ranks would give 1 worker (at most 50% efficiency from 1 to 2 ranks);
+// serving costs rank 0's main thread a few microseconds per unit.
+//
+// Threads: --threads T applies to every rank; without it each rank takes its node's cores divided
+// by the ranks on that node. OpenMPI binds each rank to one core when P <= 2 (to a socket above),
+// so several threads per rank need `mpirun --bind-to none` or `--map-by slot:PE=T`.
+//
+// Messages (MPI_COMM_WORLD; every message is between rank 0 and one worker rank):
+//   tag 1 READY   worker -> 0  one int: the worker's number of compute threads (its slots); sent
+//                              once, when the worker has loaded the study.
+//   tag 2 ASSIGN  0 -> worker  one unsigned long long: the index of a unit (into enumerate_units)
+//                              to compute; rank 0 keeps at most `slots` units in flight per worker.
+//   tag 3 RESULT  worker -> 0  chars: the unit's units.journal record (io/journal.hpp: index, CRC-32,
+//                              rows as runs.csv lines with ",<fit_seconds>"; shortest round-trip
+//                              numbers, so the rows read back exactly); it frees one slot, which
+//                              rank 0 refills with an ASSIGN while work is left.
+//   tag 4 STOP    0 -> worker  empty: no more work; sent once, when the queue is exhausted (or a
+//                              stop was requested, or a unit failed) and the worker has nothing in
+//                              flight, so no message is ever left unreceived.
+// Rank 0 calls hooks.on_unit for remote units from its main thread and for local units from its
+// compute threads, always under one mutex (never two at once). When hooks.stop_requested() turns
+// true (SIGINT on rank 0), no new unit is handed out, units in flight are collected and recorded,
+// and then every worker is stopped. A failure on a worker (an exception while computing) is
+// printed with the rank and ends the job with MPI_Abort: rank 0 cannot finish without that unit,
+// and every unit finished so far is already in units.journal, so a rerun resumes. A failure on
+// rank 0 stops handing out work, collects what is in flight, stops the workers and is rethrown.
+//
+// Waiting without stealing the compute threads' cores: blocking MPI receives spin in OpenMPI, so
+// the main threads poll with MPI_Iprobe and sleeps, backing off from 50 us after a message to a
+// cap. Rank 0's cap is 1% of the mean unit time, within [1 ms, 10 ms] (each wake-up costs about
+// 50 us of a shared core in a virtual machine; each ms of cap delays a worker's next unit by half
+// a ms). A worker whose slots all hold a unit expects no message, so it sleeps until a unit
+// finishes; with a free slot it polls for rank 0's reply, capped at 1 ms.
+#pragma once
+#include <cstddef>
+#include <vector>
+
+#include "core/runner.hpp"
+#include "core/settings.hpp"
+#include "core/unit.hpp"
+
+namespace dobudget::mpi {
+
+// MPI for the lifetime of the object: MPI_Init_thread(MPI_THREAD_FUNNELED) and MPI_Finalize.
+// Construct it on the main thread, once per process.
+class Session {
+ public:
+  Session();
+  ~Session();
+  Session(const Session&) = delete;
+  Session& operator=(const Session&) = delete;
+
+  int rank() const { return rank_; }
+  int size() const { return size_; }
+  // Ranks sharing this rank's node (MPI_COMM_TYPE_SHARED), to split the node's cores among them.
+  int ranks_on_this_node() const { return node_size_; }
+
+  // Collective: each rank says whether it is ready to take part (for instance, loaded the study).
+  struct Agreement {
+    bool root_ok = false;  // rank 0 is ready
+    bool all_ok = false;   // every rank is ready
+  };
+  Agreement agree(bool ok) const;
+
+ private:
+  int rank_ = 0;
+  int size_ = 1;
+  int node_size_ = 1;
+};
+
+// Rank 0's executor: has PlanOptions::executor's signature (use it through a lambda or std::ref,
+// it keeps state). It returns once every worker has been told to stop.
+class Coordinator {
+ public:
+  explicit Coordinator(const Session& session);
+  void operator()(const Study& study, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo,
+                  int threads, const RunnerHooks& hooks);
+  // Stops the workers if the executor has not run, so that they are not left waiting when
+  // plan_study fails before it hands out work (a directory of another study, say). Idempotent.
+  void release_workers();
+  // Units computed (and delivered) by each rank so far: how the dynamic distribution balanced.
+  const std::vector<std::size_t>& units_by_rank() const { return units_by_rank_; }
+
+ private:
+  int size_;
+  bool workers_stopped_ = false;
+  std::vector<std::size_t> units_by_rank_;
+};
+
+// Ranks 1..P-1: announce `threads` slots to rank 0, compute the units it assigns on that many
+// threads, send back their rows, return when told to stop. Never touches the run directory.
+void serve_as_worker(const Study& study, int threads);
+
+}  // namespace dobudget::mpi
