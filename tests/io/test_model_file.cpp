@@ -1,6 +1,8 @@
 // The model file: reading with located errors, and writing that round-trips bit for bit.
 #include <catch2/catch.hpp>
 
+#include "temp_dir.hpp"
+
 #include <atomic>
 #include <chrono>
 #include <cmath>
@@ -25,33 +27,7 @@ using dobudget::io::model_yaml;
 
 namespace {
 
-// A fresh directory under the system's temporary directory, removed with everything in it.
-class TempDir {
- public:
-  TempDir() {
-    static std::atomic<int> counter{0};
-    const auto stamp = std::chrono::steady_clock::now().time_since_epoch().count();
-    path_ = fs::temp_directory_path() /
-            ("dobudget_test_model_file_" + std::to_string(stamp) + "_" + std::to_string(counter++));
-    fs::create_directories(path_);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path_, ec);
-  }
-  TempDir(const TempDir&) = delete;
-  TempDir& operator=(const TempDir&) = delete;
-  const fs::path& path() const { return path_; }
-  fs::path write(const std::string& name, const std::string& text) const {
-    const fs::path p = path_ / name;
-    fs::create_directories(p.parent_path());
-    std::ofstream(p, std::ios::binary) << text;
-    return p;
-  }
-
- private:
-  fs::path path_;
-};
+using dobudget::test::TempDir;
 
 template <class A, class B>
 void require_same_bits(const A& a, const B& b) {

@@ -5,6 +5,8 @@
 // that the images were not.
 #include <catch2/catch.hpp>
 
+#include "temp_dir.hpp"
+
 #include <algorithm>
 #include <atomic>
 #include <chrono>
@@ -34,25 +36,7 @@ using namespace dobudget;
 
 namespace {
 
-class TempDir {
- public:
-  TempDir() {
-    static std::atomic<int> counter{0};
-    const auto stamp = std::chrono::steady_clock::now().time_since_epoch().count();
-    path_ = fs::temp_directory_path() / ("dobudget_test_report_" + std::to_string(stamp) + "_" + std::to_string(counter++));
-    fs::create_directories(path_);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path_, ec);
-  }
-  TempDir(const TempDir&) = delete;
-  TempDir& operator=(const TempDir&) = delete;
-  const fs::path& path() const { return path_; }
-
- private:
-  fs::path path_;
-};
+using dobudget::test::TempDir;
 
 const char* const study_text = R"(name: report-test
 seed: 7

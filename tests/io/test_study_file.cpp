@@ -1,6 +1,8 @@
 // The study file: defaults, validation with located messages, sweep expansion, resolved YAML.
 #include <catch2/catch.hpp>
 
+#include "temp_dir.hpp"
+
 #include <atomic>
 #include <chrono>
 #include <cstring>
@@ -23,32 +25,7 @@ using io::resolved_yaml;
 
 namespace {
 
-class TempDir {
- public:
-  TempDir() {
-    static std::atomic<int> counter{0};
-    const auto stamp = std::chrono::steady_clock::now().time_since_epoch().count();
-    path_ = fs::temp_directory_path() /
-            ("dobudget_test_study_file_" + std::to_string(stamp) + "_" + std::to_string(counter++));
-    fs::create_directories(path_);
-  }
-  ~TempDir() {
-    std::error_code ec;
-    fs::remove_all(path_, ec);
-  }
-  TempDir(const TempDir&) = delete;
-  TempDir& operator=(const TempDir&) = delete;
-  const fs::path& path() const { return path_; }
-  fs::path write(const std::string& name, const std::string& text) const {
-    const fs::path p = path_ / name;
-    fs::create_directories(p.parent_path());
-    std::ofstream(p, std::ios::binary) << text;
-    return p;
-  }
-
- private:
-  fs::path path_;
-};
+using dobudget::test::TempDir;
 
 const std::string model_text =
     "states: 2\n"
