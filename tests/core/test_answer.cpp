@@ -1,6 +1,8 @@
 // The answer: needed pilot episodes, intervals, statuses, savings; src/core/answer.hpp.
 #include <catch2/catch.hpp>
 
+#include "run_records.hpp"
+
 #include <algorithm>
 #include <boost/random/mersenne_twister.hpp>
 #include <boost/random/normal_distribution.hpp>
@@ -20,15 +22,7 @@ const std::vector<int> kGrid{10, 30, 100, 300, 1000};
 constexpr double kInfinity = std::numeric_limits<double>::infinity();
 
 RunRecord record(int env, int rep, Strategy s, int logged, int pilot, std::optional<double> kl) {
-  RunRecord r;
-  r.scenario = 0;
-  r.environment = env;
-  r.replicate = rep;
-  r.strategy = s;
-  r.logged = logged;
-  r.pilot = pilot;
-  r.model_kl = kl;
-  return r;
+  return test::make_record(0, env, rep, s, logged, pilot, kl);
 }
 
 ScenarioSettings settings_for(std::vector<Strategy> strategies, std::vector<int> logged,

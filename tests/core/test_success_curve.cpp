@@ -1,6 +1,8 @@
 // The raw success fraction per cell, src/core/success_curve.hpp, against hand-counted data.
 #include <catch2/catch.hpp>
 
+#include "run_records.hpp"
+
 #include <cmath>
 #include <limits>
 #include <optional>
@@ -16,19 +18,7 @@ namespace {
 constexpr double kInf = std::numeric_limits<double>::infinity();
 constexpr double kNaN = std::numeric_limits<double>::quiet_NaN();
 
-RunRecord rec(int scenario, int env, int rep, Strategy s, int logged, int pilot, std::optional<double> kl,
-              std::optional<double> gap = std::nullopt) {
-  RunRecord r;
-  r.scenario = scenario;
-  r.environment = env;
-  r.replicate = rep;
-  r.strategy = s;
-  r.logged = logged;
-  r.pilot = pilot;
-  r.model_kl = kl;
-  r.return_gap = gap;
-  return r;
-}
+constexpr auto rec = test::make_record;
 
 // Scenario 0: 2 draws x 2 replicates = 4 pairs; strategies pilot-only (logged 0) and
 // regime-aware (logged 100); pilot budgets 10 and 30. Target 0.05. In runs.csv order

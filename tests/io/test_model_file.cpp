@@ -1,6 +1,8 @@
 // The model file: reading with located errors, and writing that round-trips bit for bit.
 #include <catch2/catch.hpp>
 
+#include "input_error_of.hpp"
+
 #include "temp_dir.hpp"
 
 #include <atomic>
@@ -36,15 +38,7 @@ void require_same_bits(const A& a, const B& b) {
   if (a.size() > 0) REQUIRE(std::memcmp(a.data(), b.data(), sizeof(double) * a.size()) == 0);
 }
 
-InputError error_of(const std::function<void()>& f) {
-  try {
-    f();
-  } catch (const InputError& e) {
-    return e;
-  }
-  FAIL("expected an InputError");
-  throw;  // not reached
-}
+using dobudget::test::error_of;
 
 // A random probability row with awkward entries (thirds, tiny numbers, exact zeros).
 Vector random_row(int n, std::mt19937_64& rng) {

@@ -1,6 +1,8 @@
 // The study file: defaults, validation with located messages, sweep expansion, resolved YAML.
 #include <catch2/catch.hpp>
 
+#include "input_error_of.hpp"
+
 #include "temp_dir.hpp"
 
 #include <atomic>
@@ -44,15 +46,7 @@ const std::string model_text =
 
 Study parse(const std::string& text) { return parse_study(text, "study.yaml"); }
 
-InputError error_of(const std::function<void()>& f) {
-  try {
-    f();
-  } catch (const InputError& e) {
-    return e;
-  }
-  FAIL("expected an InputError");
-  throw;  // not reached
-}
+using dobudget::test::error_of;
 
 InputError parse_error(const std::string& text) {
   return error_of([&] { parse_study(text, "bad.yaml"); });
