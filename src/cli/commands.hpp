@@ -16,11 +16,14 @@ struct BadInput : std::runtime_error {
   using std::runtime_error::runtime_error;
 };
 
+// Option values are kept as typed; each command reads them with option_values.hpp, so that every
+// bad value is refused with the option named (exit code 2). Empty: not given.
 struct PlanArgs {
   std::string study;
-  std::string out;    // empty: runs/<study name>
-  std::string shard;  // empty or "K/N"
-  int threads = 0;    // 0: all cores
+  std::string out;      // empty: runs/<safe form of the study name> (file_name.hpp)
+  std::string shard;    // "K/N"
+  std::string threads;  // empty: all cores
+  std::string max_core_hours;  // empty: the default limit (plan_command.cpp)
   bool quiet = false;
 };
 int plan_command(const PlanArgs& args);
@@ -31,10 +34,10 @@ int draw_command(const std::string& study, const std::string& out);
 
 struct AnswerArgs {
   std::string dir;
-  std::vector<std::string> targets;  // "measure=value"
-  double assurance = 0.0;            // 0: the study's
+  std::vector<std::string> targets;  // "measure=value", at most one per measure
+  std::string assurance;             // empty: the study's
   std::string criterion;             // empty: assurance
-  int bootstrap = -1;                // -1: default
+  std::string bootstrap;             // empty: the default
 };
 int answer_command(const AnswerArgs& args);
 

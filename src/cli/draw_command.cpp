@@ -6,6 +6,7 @@
 #include "cli/commands.hpp"
 #include "core/synthetic.hpp"
 #include "io/atomic_file.hpp"
+#include "io/file_name.hpp"
 #include "io/model_file.hpp"
 #include "io/study_file.hpp"
 
@@ -13,7 +14,7 @@ namespace dobudget::cli {
 
 int draw_command(const std::string& study_file, const std::string& out) {
   const Study study = io::load_study(study_file);
-  const std::filesystem::path dir = out.empty() ? std::filesystem::path("environments") / study.name : std::filesystem::path(out);
+  const std::filesystem::path dir = out.empty() ? std::filesystem::path("environments") / io::safe_file_name(study.name) : std::filesystem::path(out);
   std::filesystem::create_directories(dir);
   for (const auto& sc : study.scenarios) {
     const int draws = sc.settings.environment.given ? 1 : sc.settings.environment.draws;

@@ -44,8 +44,11 @@ int main(int argc, char** argv) {
   auto* plan = app.add_subcommand("plan", "Simulate the study, write the run directory and print the results");
   plan->add_option("study", plan_args.study, "Study file (YAML)")->required();
   plan->add_option("--out", plan_args.out, "Run directory (default: runs/<study name>); rerun on it to resume");
-  plan->add_option("--threads", plan_args.threads, "Worker threads (default: all cores)")->check(CLI::PositiveNumber);
+  plan->add_option("--threads", plan_args.threads, "Worker threads, 1 to 1024 (default: all cores)")->type_name("N");
   plan->add_option("--shard", plan_args.shard, "Compute only shard K of N (K = 0..N-1, as job-array indices run)");
+  plan->add_option("--max-core-hours", plan_args.max_core_hours,
+                   "Refuse to start when the estimated cost is above H core-hours (default 1000)")
+      ->type_name("H");
   plan->add_flag("--quiet", plan_args.quiet, "No progress messages");
 
   auto* check = app.add_subcommand("check", "Validate a study, print it with every default filled in, count the fits");
@@ -58,10 +61,14 @@ int main(int argc, char** argv) {
   AnswerArgs answer_args;
   auto* answer = app.add_subcommand("answer", "Recompute the answer from a finished run directory (no simulation)");
   answer->add_option("dir", answer_args.dir, "Run directory")->required();
-  answer->add_option("--target", answer_args.targets, "MEASURE=VALUE, e.g. model_kl=0.01 (repeatable; replaces the study's target)");
-  answer->add_option("--assurance", answer_args.assurance, "Fraction of (draw, replicate) pairs that must meet the target, in (0, 1)");
+  answer->add_option("--target", answer_args.targets,
+                     "MEASURE=VALUE with VALUE > 0, e.g. model_kl=0.01 (once per measure; replaces the study's target)")
+      ->type_name("MEASURE=VALUE");
+  answer->add_option("--assurance", answer_args.assurance, "Fraction of (draw, replicate) pairs that must meet the target, in (0, 1)")
+      ->type_name("B");
   answer->add_option("--criterion", answer_args.criterion, "assurance (default: fraction of pairs meeting the target) or mean (mean measure meets it)");
-  answer->add_option("--bootstrap", answer_args.bootstrap, "Bootstrap resamples for the 90% interval (default 1000; 0: none)");
+  answer->add_option("--bootstrap", answer_args.bootstrap, "Bootstrap resamples for the 90% interval, 0 to 100000 (default 1000; 0: none)")
+      ->type_name("N");
 
   MergeArgs merge_args;
   auto* merge = app.add_subcommand(

@@ -5,6 +5,7 @@
 #include "cli/commands.hpp"
 #include "io/answer_table.hpp"
 #include "io/merge.hpp"
+#include "io/text_escape.hpp"
 #include "io/summary_table.hpp"
 
 namespace dobudget::cli {
@@ -15,7 +16,7 @@ int merge_command(const MergeArgs& args) {
   const io::Merge m = io::merge_run_directories(dirs, out);
 
   std::fprintf(stderr, "dobudget merge: study '%s', %zu units from %zu director%s, written to %s\n",
-               m.study.name.c_str(), m.units, m.inputs.size(), m.inputs.size() == 1 ? "y" : "ies",
+               io::printable_line(m.study.name).c_str(), m.units, m.inputs.size(), m.inputs.size() == 1 ? "y" : "ies",
                out.string().c_str());
   std::printf("%s", io::format_summary(m.study, m.rows).c_str());
   std::printf("\n%s", io::format_answer_table(m.answers, &m.study).c_str());

@@ -14,12 +14,18 @@
 #include <thread>
 
 #include "cli/commands.hpp"
+#include "cli/option_values.hpp"
 #include "core/answer.hpp"
+#include "core/cost_estimate.hpp"
+#include "core/memory_estimate.hpp"
 #include "core/unit.hpp"
 #include "io/answer_table.hpp"
+#include "io/file_name.hpp"
+#include "io/input_error.hpp"
 #include "io/run_directory.hpp"
 #include "io/study_file.hpp"
 #include "io/summary_table.hpp"
+#include "io/text_escape.hpp"
 #ifdef DOBUDGET_WITH_MPI
 #include "mpi/mpi_executor.hpp"
 #endif
@@ -30,16 +36,21 @@ namespace {
 std::atomic<bool> interrupted{false};
 extern "C" void on_interrupt(int) { interrupted = true; }
 
+// The most threads a process may ask for; more is a typing mistake (the cores are far fewer).
+constexpr long long max_threads = 1024;
+// The most shards a study may be split into (job arrays of schedulers stop well below this).
+constexpr long long max_shards = 1000000;
+
 io::Shard parse_shard(const std::string& s) {
   const auto slash = s.find('/');
+  const std::string expected = "--shard " + s + ": expected K/N with 0 <= K < N, e.g. --shard 0/4";
+  if (slash == std::string::npos) throw BadInput(expected);
   try {
-    if (slash == std::string::npos) throw std::invalid_argument("");
-    std::size_t p1 = 0, p2 = 0;
-    const int k = std::stoi(s.substr(0, slash), &p1), n = std::stoi(s.substr(slash + 1), &p2);
-    if (p1 != slash || p2 != s.size() - slash - 1 || n < 1 || k < 0 || k >= n) throw std::invalid_argument("");
-    return {k, n};
-  } catch (const std::logic_error&) {
-    throw BadInput("--shard " + s + ": expected K/N with 0 <= K < N, e.g. --shard 0/4");
+    const long long n = whole_option("--shard N", std::string_view(s).substr(slash + 1), 1, max_shards);
+    const long long k = whole_option("--shard K", std::string_view(s).substr(0, slash), 0, n - 1);
+    return {static_cast<int>(k), static_cast<int>(n)};
+  } catch (const BadInput&) {
+    throw BadInput(expected + fmt::format(" (N at most {})", max_shards));
   }
 }
 
@@ -57,8 +68,10 @@ std::string progress_line(const io::Progress& p) {
 // given), shard, progress messages and interruption. Throws BadInput for a malformed --shard.
 io::PlanOptions plan_options(const PlanArgs& args, const Study& study, int default_thread_count) {
   io::PlanOptions opt;
-  opt.out = args.out.empty() ? std::filesystem::path("runs") / study.name : std::filesystem::path(args.out);
-  opt.threads = args.threads > 0 ? args.threads : default_thread_count;
+  opt.out = args.out.empty() ? std::filesystem::path("runs") / io::safe_file_name(study.name)
+                             : std::filesystem::path(args.out);
+  opt.threads = args.threads.empty() ? default_thread_count
+                                     : static_cast<int>(whole_option("--threads", args.threads, 1, max_threads));
   if (!args.shard.empty()) opt.shard = parse_shard(args.shard);
   const bool tty = ::isatty(::fileno(stderr)) != 0;
   opt.on_progress = [quiet = args.quiet, tty, last = -1.0](const io::Progress& p) mutable {
@@ -74,6 +87,41 @@ io::PlanOptions plan_options(const PlanArgs& args, const Study& study, int defau
   return opt;
 }
 
+// What a run may spend unless --max-core-hours raises it: 1000 core-hours (a day on 42 cores),
+// well above every worked study (the largest, studies/cluster, is estimated at about 2) and far
+// below the runaway studies a mistyped budget or sweep makes (millions of core-hours).
+constexpr double default_max_core_hours = 1000.0;
+
+// Before anything is written: states the estimated cost of the units this run computes (on
+// stderr, unless quiet), and refuses (exit 2) a run whose estimate is above --max-core-hours or
+// whose estimated peak memory is above this machine's (memory_estimate.hpp).
+void check_what_it_takes(const PlanArgs& args, const Study& study, const io::PlanOptions& opt, bool print) {
+  double limit = default_max_core_hours;
+  if (!args.max_core_hours.empty()) {
+    limit = number_option("--max-core-hours", args.max_core_hours);
+    if (!(limit > 0.0))
+      throw BadInput("--max-core-hours: expected a number of core-hours greater than 0, got '" + args.max_core_hours + "'");
+  }
+  const MemoryEstimate memory = estimate_memory(study, opt.threads);
+  if (const std::string refusal = memory_refusal(memory, physical_memory_bytes()); !refusal.empty()) {
+    const std::string keys = memory.largest().keys;
+    throw io::InputError(args.study, 0, keys.substr(0, keys.find(',')), refusal);
+  }
+  const std::vector<UnitId> all = enumerate_units(study);
+  std::vector<UnitId> units;
+  for (std::size_t i : io::shard_units(all.size(), opt.shard.value_or(io::Shard{}))) units.push_back(all[i]);
+  const CostBound cost = bound_cost(study, units);
+  const double hours = cost.core_seconds / 3600.0, most = cost.max_core_seconds / 3600.0;
+  if (hours > limit)
+    throw BadInput(fmt::format("--max-core-hours: the estimated cost of this run, about {:.2g} core-hours (at most "
+                               "{:.2g}), is above the limit of {:.4g} core-hours; check the study (`dobudget check` "
+                               "shows what drives it), or raise the limit, e.g. --max-core-hours {:.2g}",
+                               hours, most, limit, std::max(hours, most) * 1.1));
+  if (print)
+    std::fprintf(stderr, "estimated cost: about %.2g core-hours (at most %.2g) for %zu units; limit %.4g (--max-core-hours)\n",
+                 hours, most, units.size(), limit);
+}
+
 void catch_interruptions() {
   std::signal(SIGINT, on_interrupt);
   std::signal(SIGTERM, on_interrupt);
@@ -86,7 +134,7 @@ int plan_and_report(const Study& study, const std::string& resolved, const io::P
   const bool tty = ::isatty(::fileno(stderr)) != 0;
   if (!quiet)
     std::fprintf(stderr, "dobudget plan: study '%s', %zu scenario(s), %zu units, %s, writing %s\n",
-                 study.name.c_str(), study.scenarios.size(), enumerate_units(study).size(),
+                 io::printable_line(study.name).c_str(), study.scenarios.size(), enumerate_units(study).size(),
                  (ranks == 1 ? fmt::format("{} thread(s)", opt.threads)
                              : fmt::format("{} MPI ranks x {} thread(s)", ranks, opt.threads))
                      .c_str(),
@@ -133,6 +181,7 @@ int plan_on_ranks(const PlanArgs& args, const mpi::Session& session) {
     resolved = io::resolved_yaml(*study);
     // --threads is per rank; by default the ranks on a node share its cores.
     opt = plan_options(args, *study, std::max(1, default_threads() / session.ranks_on_this_node()));
+    check_what_it_takes(args, *study, opt, session.rank() == 0 && !args.quiet);
   } catch (...) {
     error = std::current_exception();
   }
@@ -169,7 +218,7 @@ int plan_on_ranks(const PlanArgs& args, const mpi::Session& session) {
     return 2;
   }
   if (!agreed.all_ok) return 2;
-  mpi::serve_as_worker(*study, opt.threads);
+  mpi::serve_as_worker(*study, opt.threads, opt.stop_requested);
   return 0;
 }
 #endif
@@ -184,6 +233,7 @@ int plan_command(const PlanArgs& args) {
   const Study study = io::load_study(args.study);
   const std::string resolved = io::resolved_yaml(study);
   const io::PlanOptions opt = plan_options(args, study, default_threads());
+  check_what_it_takes(args, study, opt, !args.quiet);
   catch_interruptions();
   return plan_and_report(study, resolved, opt, args.quiet, 1);
 }

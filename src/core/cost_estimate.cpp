@@ -25,15 +25,119 @@ double observations_per_unit(const ScenarioSettings& s) {
     for (int L : s.logged_budgets)
       for (int n : s.pilot_budgets) {
         const bool shared = st == Strategy::pilot_only || L == 0;
+        // In double: n + L in int overflowed for budgets near 2^31 (a negative cost was printed).
         fits[{shared ? 0 : static_cast<int>(st), shared ? 0 : L, n}] =
-            static_cast<double>(n + (shared ? 0 : L)) * (s.environment.horizon + 1);
+            (static_cast<double>(n) + (shared ? 0.0 : static_cast<double>(L))) * (s.environment.horizon + 1.0);
       }
   double total = 0.0;
   for (const auto& [k, obs] : fits) total += obs;
   return total;
 }
 
+// Rates of bound_cost, measured on the project's 2-core machine (AMD EPYC, 2026-12), Release build:
+//  * em_per_observation_z2 = 1e-9 s: `build/bench_em 60` gives 2.6-2.7 ms per regime-aware E-step
+//    and M-step over 2000 episodes of H 20 (42000 observations) with Z = 8: 6.2e-8 s per
+//    observation, about 1e-9 x Z^2.
+//  * em_per_observation = 5e-8 s: `build/dobudget check configs/default.yaml` calibrates 0.02 s per
+//    1000 observations fitted at Z = 4 with 3 restarts and 91 E-steps each on average (the mean of
+//    `iterations` in that study's runs.csv: typical_iterations below): 7.3e-8 s per observation
+//    per E-step, of which Z^2 x 1e-9 = 1.6e-8 s; the rest is per-observation overhead.
+//  * kl_seconds = 5e-9 s: the same `check` times model_kl at 0.00066 s per fit, T = 500, H = 8,
+//    Z = 4, O = 2: 126000 terms T (H + 1)(Z^2 + Z O + Z).
+//  * op_seconds = 1.2e-10 s: `build/bench_planner 5` plans S = 8, A = 3, O = 6, H = 20, N = 500 in
+//    176 ms: 1.45e9 terms 2 H A N (S^2 + S O + O N S).
+constexpr double em_per_observation = 5e-8;
+constexpr double em_per_observation_z2 = 1e-9;
+constexpr double kl_seconds = 5e-9;
+constexpr double op_seconds = 1.2e-10;
+//  * step_seconds = 1.5e-7 s: one step of a rollout (three uniforms, two categorical draws, the
+//    belief update) beyond its alpha products: `dobudget plan` of a study with S = 3, A = 2,
+//    O = 2, H = 10, N = 20, exact_histories 0 and 2 million rollouts per evaluation took 14.3 s
+//    for 10^8 rollout steps (tests/cli/test_stop.cpp's study, rollouts raised).
+constexpr double step_seconds = 1.5e-7;
+// E-steps of a typical start: the default study's fits averaged 91 (cap 200; DEVELOPERS.md).
+constexpr double typical_iterations = 100.0;
+
+struct Sizes {
+  double S, A, O, H, Z, T, N, R, X;
+};
+
+Sizes sizes_of(const ScenarioSettings& s) {
+  const EnvironmentSettings& e = s.environment;
+  return {static_cast<double>(e.given ? e.given->model.states : e.family.states),
+          static_cast<double>(e.given ? e.given->model.actions : e.family.actions),
+          static_cast<double>(e.given ? e.given->model.observations : e.family.observations),
+          static_cast<double>(e.horizon),
+          static_cast<double>(s.fit.latent_states),
+          static_cast<double>(s.evaluation.trajectories),
+          static_cast<double>(s.planner.belief_points),
+          static_cast<double>(s.planner.rollouts),
+          static_cast<double>(s.planner.exact_histories)};
+}
+
+// Seconds of planning in a model of K states and evaluating that plan (see the header): the
+// exact walk is tried first (it stops after exact_histories histories), then rollouts.
+double return_gap_seconds(const Sizes& z, double K) {
+  const double planning = 2.0 * z.H * z.A * z.N * (K * K + K * z.O + z.O * z.N * K) * op_seconds;
+  const double per_step = step_seconds + (z.N * K + K * K + z.S * z.S) * op_seconds;
+  return planning + (z.X + z.R * z.H) * per_step;
+}
+
+bool measured(const ScenarioSettings& s, Measure m) {
+  return std::find(s.measures.begin(), s.measures.end(), m) != s.measures.end();
+}
+
+// Seconds of the measures of one fit.
+double measure_seconds(const ScenarioSettings& s) {
+  const Sizes z = sizes_of(s);
+  double t = 0.0;
+  if (measured(s, Measure::model_kl)) t += z.T * (z.H + 1.0) * (z.Z * z.Z + z.Z * z.O + z.Z) * kl_seconds;
+  if (measured(s, Measure::return_gap)) t += return_gap_seconds(z, z.Z);
+  return t;
+}
+
 }  // namespace
+
+CostBound bound_fit_cost(const ScenarioSettings& s, double episodes) {
+  const Sizes z = sizes_of(s);
+  const double obs = episodes * (z.H + 1.0);
+  const double step = obs * (em_per_observation + em_per_observation_z2 * z.Z * z.Z) + z.A * z.O * z.Z * z.Z * op_seconds;
+  const double cap = s.fit.max_iterations, restarts = std::max(1, s.fit.restarts);
+  return {restarts * std::min(cap, typical_iterations) * step, restarts * cap * step};
+}
+
+CostBound bound_cost(const Study& study, const std::vector<UnitId>& units) {
+  CostBound out;
+  std::map<std::pair<int, int>, int> draws;
+  std::map<int, double> units_of;  // per scenario
+  for (const UnitId& u : units) {
+    draws[{u.scenario, u.draw}] = 1;
+    units_of[u.scenario] += 1.0;
+  }
+  for (const auto& [index, count] : units_of) {
+    const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(index)].settings;
+    // Fits of one unit: observations summed over distinct fits, as one fit of that many episodes.
+    const double episodes = observations_per_unit(s) / (s.environment.horizon + 1.0);
+    const CostBound fits = bound_fit_cost(s, episodes);
+    double per_unit_measures = fits_per_unit(s) * measure_seconds(s);
+    if (measured(s, Measure::return_gap)) {  // the true plan's rollout returns, once per unit
+      const Sizes z = sizes_of(s);
+      per_unit_measures += z.R * z.H * (step_seconds + (z.N * z.S + z.S * z.S) * op_seconds);
+    }
+    // bound_fit_cost charges the A O Z^2 load once; a unit pays it per fit (negligible beside obs).
+    out.core_seconds += count * (fits.core_seconds + per_unit_measures);
+    out.max_core_seconds += count * (fits.max_core_seconds + per_unit_measures);
+  }
+  for (const auto& [key, one] : draws) {
+    const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(key.first)].settings;
+    if (!measured(s, Measure::return_gap)) continue;
+    const Sizes z = sizes_of(s);
+    const double per_draw = return_gap_seconds(z, z.S);
+    out.core_seconds += per_draw;
+    out.max_core_seconds += per_draw;
+  }
+  return out;
+}
 
 CostEstimate estimate_cost(const Study& study, int calibration_episodes) {
   CostEstimate out;
@@ -43,9 +147,10 @@ CostEstimate estimate_cost(const Study& study, int calibration_episodes) {
     const StreamKey key{study.seed, static_cast<std::uint64_t>(sc.index), 0, 0};
     const Environment env = make_environment(s, key);
     // Calibration data: pilot and logged episodes in the proportions of the largest budgets.
-    const double total = s.pilot_budgets.back() + s.logged_budgets.back();
-    const int n_pilot = std::max(1, static_cast<int>(calibration_episodes * s.pilot_budgets.back() / total));
-    const int n_logged = static_cast<int>(calibration_episodes * s.logged_budgets.back() / total);
+    // In double: the products overflowed int for budgets above about 2 million.
+    const double total = static_cast<double>(s.pilot_budgets.back()) + s.logged_budgets.back();
+    const int n_pilot = std::max(1, static_cast<int>(calibration_episodes * (s.pilot_budgets.back() / total)));
+    const int n_logged = static_cast<int>(calibration_episodes * (s.logged_budgets.back() / total));
     Engine rng = make_engine(key, Purpose::fit, name_key("calibration"));
     const Dataset pilot = simulate(env, Regime::pilot, n_pilot, rng);
     const Dataset logged = simulate(env, Regime::logged, n_logged, rng);

@@ -9,10 +9,26 @@
 // fit settings (restarts, tolerance, iteration cap); measure costs are timed once on its result.
 // The estimate inherits the calibration fit's number of EM iterations; fits that converge faster
 // or slower than it make the estimate high or low (DEVELOPERS.md reports how far off it was).
+//
+// For `plan`, which must say what it is about to spend before it starts, bound_cost() gives a
+// cheap deterministic estimate from counts alone (no calibration), at rates measured once on the
+// project's 2-core machine (cost_estimate.cpp names them and the commands that measured them).
+// Per distinct fit of n pilot + L logged episodes (obs = (n + L)(H + 1) observations), per E-step:
+//   em = obs x (em_per_observation + em_per_observation_z2 x Z^2) + A O Z^2 x op_seconds,
+// times restarts x E-steps, with E-steps = min(fit.max_iterations, typical_iterations) for the
+// estimate and fit.max_iterations for the bound; per fit, for the measures measured:
+//   model_kl   = T (H + 1)(Z^2 + Z O + Z) x kl_seconds,
+//   return_gap = 2 H A N (Z^2 + Z O + O N Z) x op_seconds
+//                + (exact_histories + R H) x [step_seconds + (N Z + Z^2 + S^2) x op_seconds],
+// (a plan: two backups of N points per stage against at most N alphas; its evaluation: the exact
+// walk, then rollouts if the walk meets too many histories, each step choosing among at most N
+// alphas); per unit R H such steps of the true plan's rollouts; per environment draw the same
+// return_gap terms with S for Z (the true plan and V*). Every count is a double: no overflow.
 #pragma once
 #include <vector>
 
 #include "core/settings.hpp"
+#include "core/unit.hpp"
 
 namespace dobudget {
 
@@ -33,5 +49,17 @@ struct CostEstimate {
 };
 
 CostEstimate estimate_cost(const Study& study, int calibration_episodes = 1000);
+
+struct CostBound {
+  double core_seconds = 0.0;      // the estimate (typical numbers of EM iterations)
+  double max_core_seconds = 0.0;  // every start of every fit runs to fit.max_iterations
+};
+
+// The cost of running `units` (all of them, or one shard's) of `study`; see above. Draws are
+// counted once for every (scenario, draw) that has a unit in `units`.
+CostBound bound_cost(const Study& study, const std::vector<UnitId>& units);
+
+// Cost bound of one fit of `episodes` episodes with the scenario's settings (calibration and tests).
+CostBound bound_fit_cost(const ScenarioSettings& s, double episodes);
 
 }  // namespace dobudget

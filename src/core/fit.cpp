@@ -135,7 +135,8 @@ struct Run {
 
 class Accelerated {
  public:
-  Accelerated(ForwardBackward& fb, const std::vector<DataView>& data, const FitSettings& s) : fb_(fb), data_(data), s_(s) {}
+  Accelerated(ForwardBackward& fb, const std::vector<DataView>& data, const FitSettings& s, const StopToken& stop)
+      : fb_(fb), data_(data), s_(s), stop_(stop) {}
 
   void run(Run& run) {
     Params& p0 = run.p;
@@ -207,6 +208,7 @@ class Accelerated {
     run.obj = r.obj;
   }
   void evaluate(const Params& p, ExpectedCounts& c, Run& out) {
+    stop_.poll();  // between E-steps: the only long computation of a fit
     const Matrix* qAp = p.qA.size() > 0 ? &p.qA : nullptr;
     c.reset(p.m.states, p.m.actions, p.m.observations);
     fb_.load(p.m, qAp);
@@ -218,6 +220,7 @@ class Accelerated {
   ForwardBackward& fb_;
   const std::vector<DataView>& data_;
   const FitSettings& s_;
+  const StopToken& stop_;
   ExpectedCounts c0_, c1_, cn_;
   std::vector<double> x0_, x1_, x2_, r_, v_, xn_;
 };
@@ -225,11 +228,11 @@ class Accelerated {
 }  // namespace
 
 FitResult fit(const std::vector<DataView>& data, bool decision_rule, const FitSettings& s, const Pomdp& shape,
-              Engine& rng) {
+              Engine& rng, const StopToken& stop) {
   const int Z = s.latent_states;
   const Vector freq = observation_frequencies(data, shape.observations);
   ForwardBackward fb(Z, shape.actions, shape.observations, max_horizon(data));
-  Accelerated em(fb, data, s);
+  Accelerated em(fb, data, s, stop);
   FitResult best;
   best.objective = -std::numeric_limits<double>::infinity();
   for (int r = 0; r < std::max(1, s.restarts); ++r) {

@@ -12,6 +12,7 @@
 #include "core/pomdp.hpp"
 #include "core/seeding.hpp"
 #include "core/settings.hpp"
+#include "core/stop.hpp"
 
 namespace dobudget {
 
@@ -33,8 +34,9 @@ struct FitResult {
 // Initialisation of each restart (drawn from `rng`): q0, qT[a] rows and qA rows ~ Dirichlet(1);
 // qE rows = 1/2 (empirical observation frequencies) + 1/2 Dirichlet(1), which starts every latent
 // value near the data yet breaks the symmetry between them.
+// `stop` is polled before every E-step (stop.hpp): a requested stop throws Cancelled.
 FitResult fit(const std::vector<DataView>& data, bool decision_rule, const FitSettings& settings, const Pomdp& shape,
-              Engine& rng);
+              Engine& rng, const StopToken& stop = {});
 
 // One EM step from `model` (and `decision` when not empty); returns the log-likelihood of the
 // data under the parameters before the step. Exposed for reference tests.

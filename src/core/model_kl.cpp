@@ -8,11 +8,12 @@
 
 namespace dobudget {
 
-void predictives(const Pomdp& m, const Dataset& h, std::vector<double>& out) {
+void predictives(const Pomdp& m, const Dataset& h, std::vector<double>& out, const StopToken& stop) {
   const int H = h.horizon, O = m.observations;
   out.resize(static_cast<std::size_t>(h.count) * (H + 1) * O);
   std::vector<double> b(static_cast<std::size_t>(m.states)), p(static_cast<std::size_t>(m.states));
   for (int i = 0; i < h.count; ++i) {
+    if (i % 256 == 0) stop.poll();
     const auto* o = h.obs(i);
     const auto* a = h.act(i);
     double* pred = out.data() + static_cast<std::size_t>(i) * (H + 1) * O;
@@ -36,18 +37,18 @@ void predictives(const Pomdp& m, const Dataset& h, std::vector<double>& out) {
   }
 }
 
-EvaluationSet make_evaluation_set(const Pomdp& truth, Dataset histories) {
+EvaluationSet make_evaluation_set(const Pomdp& truth, Dataset histories, const StopToken& stop) {
   EvaluationSet e;
   e.histories = std::move(histories);
-  predictives(truth, e.histories, e.truth);
+  predictives(truth, e.histories, e.truth, stop);
   e.log_truth.resize(e.truth.size());
   for (std::size_t k = 0; k < e.truth.size(); ++k) e.log_truth[k] = e.truth[k] > 0.0 ? std::log(e.truth[k]) : 0.0;
   return e;
 }
 
-double model_kl(const EvaluationSet& e, const Pomdp& fitted) {
+double model_kl(const EvaluationSet& e, const Pomdp& fitted, const StopToken& stop) {
   std::vector<double> q;
-  predictives(fitted, e.histories, q);
+  predictives(fitted, e.histories, q, stop);
   double kl = 0.0;
   for (std::size_t k = 0; k < q.size(); ++k) {
     const double p = e.truth[k];

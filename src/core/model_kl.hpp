@@ -11,12 +11,14 @@
 
 #include "core/dataset.hpp"
 #include "core/pomdp.hpp"
+#include "core/stop.hpp"
 
 namespace dobudget {
 
 // Predictives p(o_t | history) of `model` along every episode of `histories`, t = 0..H, written
 // to out[(i*(H+1) + t)*O + o]. Predictive over observations only: the actions are interventions.
-void predictives(const Pomdp& model, const Dataset& histories, std::vector<double>& out);
+// `stop` is polled every 256 histories (stop.hpp).
+void predictives(const Pomdp& model, const Dataset& histories, std::vector<double>& out, const StopToken& stop = {});
 
 struct EvaluationSet {
   Dataset histories;
@@ -24,10 +26,10 @@ struct EvaluationSet {
   std::vector<double> log_truth;  // log of each (0 where the probability is 0)
 };
 
-EvaluationSet make_evaluation_set(const Pomdp& truth, Dataset histories);
+EvaluationSet make_evaluation_set(const Pomdp& truth, Dataset histories, const StopToken& stop = {});
 
 // KL averaged over t and histories. +infinity if the model gives zero probability to an
 // observation the truth can produce.
-double model_kl(const EvaluationSet& eval, const Pomdp& fitted);
+double model_kl(const EvaluationSet& eval, const Pomdp& fitted, const StopToken& stop = {});
 
 }  // namespace dobudget

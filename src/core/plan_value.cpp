@@ -25,8 +25,8 @@ void track(const Pomdp& bm, const double* pred, int o, double* b) {
 // Depth-first enumeration of the observation branches under the plan (see header).
 class ExactWalk {
  public:
-  ExactWalk(const Pomdp& truth, const Pomdp& bm, const Plan& plan, long long max_histories)
-      : truth_(truth), bm_(bm), plan_(plan), max_(max_histories), S_(truth.states), Z_(bm.states),
+  ExactWalk(const Pomdp& truth, const Pomdp& bm, const Plan& plan, long long max_histories, const StopToken& stop)
+      : truth_(truth), bm_(bm), plan_(plan), stop_(stop), max_(max_histories), S_(truth.states), Z_(bm.states),
         O_(truth.observations), H_(truth.horizon) {
     q_.resize(static_cast<std::size_t>(H_ + 1) * S_);
     qp_.resize(static_cast<std::size_t>(H_) * S_);
@@ -63,6 +63,7 @@ class ExactWalk {
   double walk(int t) {
     if (t == H_) {
       if (++count_ > max_) overflow_ = true;
+      if (count_ % 4096 == 0) stop_.poll();
       return 0.0;
     }
     const double* q = q_.data() + static_cast<std::ptrdiff_t>(t) * S_;
@@ -93,6 +94,7 @@ class ExactWalk {
   const Pomdp& truth_;
   const Pomdp& bm_;
   const Plan& plan_;
+  const StopToken& stop_;
   long long max_;
   int S_, Z_, O_, H_;
   std::vector<double> q_, qp_, b_, bp_, disc_;
@@ -116,7 +118,7 @@ double histories_lower_bound(const Pomdp& m) {
 
 // CRN rollouts of the plan (plan != nullptr) or of the uniform policy (plan == nullptr).
 PolicyValue rollouts(const Pomdp& truth, const Pomdp* bm, const Plan* plan, int n, const StreamKey& key,
-                     std::vector<double>* returns) {
+                     std::vector<double>* returns, const StopToken& stop) {
   if (n < 2) throw std::invalid_argument("rollouts: need at least 2 rollouts for a standard error");
   const int S = truth.states, A = truth.actions, O = truth.observations, H = truth.horizon;
   const int Z = bm ? bm->states : 0;
@@ -127,6 +129,7 @@ PolicyValue rollouts(const Pomdp& truth, const Pomdp* bm, const Plan* plan, int 
   Engine eng = make_engine(key, Purpose::rollout);
   boost::random::uniform_01<double> U;
   for (int i = 0; i < n; ++i) {
+    if (i % 16 == 0) stop.poll();
     const double u_s0 = U(eng), u_o0 = U(eng);
     int s = categorical_from_uniform(u_s0, truth.initial.data(), S);
     int o = categorical_from_uniform(u_o0, truth.emissions.data() + static_cast<std::ptrdiff_t>(s) * O, O);
@@ -173,10 +176,10 @@ void check_compatible(const Pomdp& truth, const Pomdp& bm, const Plan& plan) {
 }
 
 std::optional<PolicyValue> exact_plan_value(const Pomdp& truth, const Pomdp& bm, const Plan& plan,
-                                            long long max_histories) {
+                                            long long max_histories, const StopToken& stop) {
   check_compatible(truth, bm, plan);
   if (max_histories < 1 || histories_lower_bound(truth) > static_cast<double>(max_histories)) return std::nullopt;
-  ExactWalk walk(truth, bm, plan, max_histories);
+  ExactWalk walk(truth, bm, plan, max_histories, stop);
   const std::optional<double> v = walk.run();
   if (!v) return std::nullopt;
   PolicyValue out;
@@ -187,15 +190,15 @@ std::optional<PolicyValue> exact_plan_value(const Pomdp& truth, const Pomdp& bm,
 }
 
 PolicyValue rollout_plan_value(const Pomdp& truth, const Pomdp& bm, const Plan& plan, int n, const StreamKey& key,
-                               std::vector<double>* returns) {
+                               std::vector<double>* returns, const StopToken& stop) {
   check_compatible(truth, bm, plan);
-  return rollouts(truth, &bm, &plan, n, key, returns);
+  return rollouts(truth, &bm, &plan, n, key, returns, stop);
 }
 
 PolicyValue plan_value(const Pomdp& truth, const Pomdp& bm, const Plan& plan, const PlannerSettings& settings,
-                       const StreamKey& key) {
-  if (auto v = exact_plan_value(truth, bm, plan, settings.exact_histories)) return *v;
-  return rollout_plan_value(truth, bm, plan, settings.rollouts, key);
+                       const StreamKey& key, const StopToken& stop) {
+  if (auto v = exact_plan_value(truth, bm, plan, settings.exact_histories, stop)) return *v;
+  return rollout_plan_value(truth, bm, plan, settings.rollouts, key, nullptr, stop);
 }
 
 double exact_uniform_value(const Pomdp& truth) {
@@ -214,7 +217,7 @@ double exact_uniform_value(const Pomdp& truth) {
 }
 
 PolicyValue rollout_uniform_value(const Pomdp& truth, int n, const StreamKey& key, std::vector<double>* returns) {
-  return rollouts(truth, nullptr, nullptr, n, key, returns);
+  return rollouts(truth, nullptr, nullptr, n, key, returns, StopToken{});
 }
 
 }  // namespace dobudget

@@ -40,6 +40,7 @@
 #include "core/pomdp.hpp"
 #include "core/seeding.hpp"
 #include "core/settings.hpp"
+#include "core/stop.hpp"
 
 namespace dobudget {
 
@@ -54,18 +55,21 @@ struct PolicyValue {
 // of the belief model's size and covers the truth's horizon; throws std::invalid_argument otherwise.
 void check_compatible(const Pomdp& truth, const Pomdp& belief_model, const Plan& plan);
 
+// `stop` (stop.hpp) is polled every 4096 histories of the exact walk and every 16 rollouts.
+
 // Exact value, or nullopt when the plan reaches more than max_histories histories.
 std::optional<PolicyValue> exact_plan_value(const Pomdp& truth, const Pomdp& belief_model, const Plan& plan,
-                                            long long max_histories);
+                                            long long max_histories, const StopToken& stop = {});
 
 // Mean return over `rollouts` (>= 2) CRN episodes from make_engine(key, Purpose::rollout).
 // If `returns` is given it receives the per-rollout returns (resized to `rollouts`).
 PolicyValue rollout_plan_value(const Pomdp& truth, const Pomdp& belief_model, const Plan& plan, int rollouts,
-                               const StreamKey& key, std::vector<double>* returns = nullptr);
+                               const StreamKey& key, std::vector<double>* returns = nullptr,
+                               const StopToken& stop = {});
 
 // Exact when at most settings.exact_histories histories are reachable, else settings.rollouts rollouts.
 PolicyValue plan_value(const Pomdp& truth, const Pomdp& belief_model, const Plan& plan,
-                       const PlannerSettings& settings, const StreamKey& key);
+                       const PlannerSettings& settings, const StreamKey& key, const StopToken& stop = {});
 
 // Uniform policy: exact value (forward marginals, any size) and CRN rollouts (same layout as above).
 double exact_uniform_value(const Pomdp& truth);

@@ -93,13 +93,14 @@ struct Workspace {
 // Point-based backup of the n points in `pts` against the next stage's alphas `next`
 // (Kn x S; a single zero row for t = H-1). Writes the pruned set into out_alpha / out_action.
 void backup_stage(const Pomdp& m, const PointSet& pts, const Matrix& next, Workspace& w, Matrix& out_alpha,
-                  std::vector<int>& out_action) {
+                  std::vector<int>& out_action, const StopToken& stop) {
   const int S = w.S, A = w.A, O = w.O, n = pts.count;
   const int Kn = static_cast<int>(next.rows());
   const Eigen::Map<const Matrix> B(pts.data.data(), n, S);
   const Vector& r = m.rewards;
 
   for (int a = 0; a < A; ++a) {
+    stop.poll();
     auto Pa = w.Pa.topRows(n);
     auto PO = w.PO.topRows(n);
     Pa.noalias() = B * m.transitions[a];
@@ -195,7 +196,7 @@ void backup_stage(const Pomdp& m, const PointSet& pts, const Matrix& next, Works
 }
 
 // Backs up every stage from H-1 down to 0.
-void backup_all(const Pomdp& m, const std::vector<PointSet>& sets, Workspace& w, Plan& p) {
+void backup_all(const Pomdp& m, const std::vector<PointSet>& sets, Workspace& w, Plan& p, const StopToken& stop) {
   const int H = m.horizon;
   const Matrix zero = Matrix::Zero(1, m.states);  // V_H = 0
   int most = 1;
@@ -203,7 +204,7 @@ void backup_all(const Pomdp& m, const std::vector<PointSet>& sets, Workspace& w,
   w.reserve(most, most);  // a stage has at most as many alphas as points
   for (int t = H - 1; t >= 0; --t) {
     const Matrix& next = (t == H - 1) ? zero : p.alpha[t + 1];
-    backup_stage(m, sets[t], next, w, p.alpha[t], p.action[t]);
+    backup_stage(m, sets[t], next, w, p.alpha[t], p.action[t], stop);
     p.belief_points[t] = sets[t].count;
     p.complete[t] = sets[t].complete ? 1 : 0;
   }
@@ -215,7 +216,7 @@ enum class Rule { uniform, greedy };
 // than `target` points. Stops when all such stages are full, after `stall` consecutive
 // trajectories that added nothing, or after `cap` trajectories. Returns true when all are full.
 bool simulate(const Pomdp& m, const Plan* greedy, Rule rule, int target, std::vector<PointSet>& sets, Engine& eng,
-              std::vector<double>& buf) {
+              std::vector<double>& buf, const StopToken& stop) {
   const int S = m.states, A = m.actions, O = m.observations, H = m.horizon;
   auto full = [&] {
     for (const PointSet& s : sets)
@@ -230,6 +231,7 @@ bool simulate(const Pomdp& m, const Plan* greedy, Rule rule, int target, std::ve
   const long cap = 10L * target + 1000;
   int stall = 0;
   for (long traj = 0; traj < cap && stall < stall_limit; ++traj) {
+    stop.poll();
     if (full()) return true;
     bool added = false;
     // o_0 ~ P(o_0), b_0 = p0 | o_0.
@@ -259,10 +261,16 @@ bool simulate(const Pomdp& m, const Plan* greedy, Rule rule, int target, std::ve
 
 }  // namespace
 
-Plan plan(const Pomdp& model, const PlannerSettings& settings, const StreamKey& key) {
+Plan plan(const Pomdp& model, const PlannerSettings& settings, const StreamKey& key, const StopToken& stop) {
   if (model.horizon < 1) throw std::invalid_argument("plan: horizon must be at least 1");
   if (settings.belief_points < 1) throw std::invalid_argument("plan: belief_points must be at least 1");
   if (auto e = validate(model, 1e-6); !e.empty()) throw std::invalid_argument("plan: " + e);
+  // |V_t(b)| <= (H - t) max_o |r(o)| (discount <= 1, probabilities): finite when H max |r| is. An
+  // infinite alpha entry meets a zero belief entry in b . alpha and gives NaN, which compares with
+  // nothing (found with rewards of 1e308: the plan's choices were no action at all).
+  const double most = model.rewards.size() > 0 ? model.rewards.cwiseAbs().maxCoeff() : 0.0;
+  if (!std::isfinite(most) || !std::isfinite(most * model.horizon))
+    throw std::invalid_argument("plan: the rewards must be finite and horizon x max |reward| must not overflow");
   const int S = model.states, A = model.actions, O = model.observations, H = model.horizon;
   const int N = settings.belief_points;
 
@@ -294,6 +302,7 @@ Plan plan(const Pomdp& model, const PlannerSettings& settings, const StreamKey& 
     PointSet& next = sets[t + 1];
     bool fits = true;
     for (int i = 0; i < sets[t].count && fits; ++i) {
+      if (i % 64 == 0) stop.poll();
       const double* b = sets[t].data.data() + static_cast<std::ptrdiff_t>(i) * S;
       for (int a = 0; a < A && fits; ++a) {
         predict(model, b, a, q);
@@ -331,7 +340,7 @@ Plan plan(const Pomdp& model, const PlannerSettings& settings, const StreamKey& 
 
   if (t_done == H - 1 && sets[0].complete) {
     Workspace w(model);
-    backup_all(model, sets, w, out);
+    backup_all(model, sets, w, out, stop);
     return out;
   }
 
@@ -339,12 +348,12 @@ Plan plan(const Pomdp& model, const PlannerSettings& settings, const StreamKey& 
   Engine eng = make_engine(key, Purpose::planner, settings.seed);
   std::vector<double> sim(static_cast<std::size_t>(2 * S + O));
   Workspace w(model);
-  simulate(model, nullptr, Rule::uniform, (N + 1) / 2, sets, eng, sim);
-  backup_all(model, sets, w, out);
+  simulate(model, nullptr, Rule::uniform, (N + 1) / 2, sets, eng, sim, stop);
+  backup_all(model, sets, w, out, stop);
   if (N > 1) {
-    if (!simulate(model, &out, Rule::greedy, N, sets, eng, sim))
-      simulate(model, nullptr, Rule::uniform, N, sets, eng, sim);
-    backup_all(model, sets, w, out);
+    if (!simulate(model, &out, Rule::greedy, N, sets, eng, sim, stop))
+      simulate(model, nullptr, Rule::uniform, N, sets, eng, sim, stop);
+    backup_all(model, sets, w, out, stop);
   }
   return out;
 }
@@ -370,7 +379,7 @@ int choose_action(const Plan& p, int t, const double* belief) {
   const std::vector<int>& acts = p.action[static_cast<std::size_t>(t)];
   for (int k = 0; k < K; ++k)
     if (v[k] >= thr && acts[k] < act) act = acts[k];
-  return act;
+  return act == std::numeric_limits<int>::max() ? 0 : act;  // NaN values compare with nothing
 }
 
 double value(const Plan& p, int t, const double* belief) {

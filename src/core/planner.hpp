@@ -56,6 +56,7 @@
 #include "core/pomdp.hpp"
 #include "core/seeding.hpp"
 #include "core/settings.hpp"
+#include "core/stop.hpp"
 
 namespace dobudget {
 
@@ -70,11 +71,14 @@ struct Plan {
 };
 
 // Plans in `model` (its horizon, discount and rewards). Throws std::invalid_argument when
-// model.horizon < 1 or settings.belief_points < 1.
-Plan plan(const Pomdp& model, const PlannerSettings& settings, const StreamKey& key);
+// model.horizon < 1, settings.belief_points < 1, or a reward is not finite or H x max |r(o)|
+// overflows (every stage value is bounded by it, and an infinite one makes b . alpha = 0 x inf
+// NaN). `stop` is polled between stages, actions of a backup, trajectories and expanded points.
+Plan plan(const Pomdp& model, const PlannerSettings& settings, const StreamKey& key, const StopToken& stop = {});
 
 // a_t = action of argmax_k alpha_k . b at stage t; among alphas whose value is within
 // 1e-12 * (1 + |max|) of the maximum, the lowest action index wins. `belief` has plan.states entries.
+// Always a valid action: if no value compares (all NaN, which plan() rules out) it is action 0.
 int choose_action(const Plan& plan, int t, const double* belief);
 
 // V_t(b) = max_k alpha_k . b (stage t in 0..H-1; returns 0 for t == H).

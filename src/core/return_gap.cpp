@@ -21,16 +21,17 @@ double room_threshold(double v_star, double v_star_se) {
 
 std::optional<double> normalised_gap(double v_star, double v_uniform, double v, double v_star_se) {
   const double den = v_star - v_uniform;
-  if (!(den >= room_threshold(v_star, v_star_se))) return std::nullopt;
+  if (!std::isfinite(den) || !(den >= room_threshold(v_star, v_star_se))) return std::nullopt;
   return (v_star - v) / den;
 }
 
-ReturnGapReference prepare_return_gap(const Pomdp& truth, const PlannerSettings& settings, const StreamKey& key) {
+ReturnGapReference prepare_return_gap(const Pomdp& truth, const PlannerSettings& settings, const StreamKey& key,
+                                      const StopToken& stop) {
   StreamKey k0 = key;
   k0.replicate = 0;
   ReturnGapReference ref;
-  ref.true_plan = plan(truth, settings, k0);
-  const PolicyValue v = plan_value(truth, truth, ref.true_plan, settings, k0);
+  ref.true_plan = plan(truth, settings, k0, stop);
+  const PolicyValue v = plan_value(truth, truth, ref.true_plan, settings, k0, stop);
   ref.v_star = v.mean;
   ref.v_star_se = v.standard_error;
   ref.v_star_exact = v.exact;
@@ -41,16 +42,16 @@ ReturnGapReference prepare_return_gap(const Pomdp& truth, const PlannerSettings&
 }
 
 std::vector<double> true_plan_returns(const Pomdp& truth, const ReturnGapReference& ref, const PlannerSettings& settings,
-                                      const StreamKey& replicate_key) {
+                                      const StreamKey& replicate_key, const StopToken& stop) {
   std::vector<double> r;
   if (ref.room && !ref.v_star_exact)
-    rollout_plan_value(truth, truth, ref.true_plan, settings.rollouts, replicate_key, &r);
+    rollout_plan_value(truth, truth, ref.true_plan, settings.rollouts, replicate_key, &r, stop);
   return r;
 }
 
 ReturnGapResult return_gap(const Pomdp& truth, const Pomdp& fitted, const ReturnGapReference& ref,
                            const PlannerSettings& settings, const StreamKey& replicate_key,
-                           const std::vector<double>* star_returns) {
+                           const std::vector<double>* star_returns, const StopToken& stop) {
   if (ref.true_plan.states != truth.states || ref.true_plan.horizon != truth.horizon)
     throw std::invalid_argument("return_gap: the reference was not prepared for this truth");
   if (fitted.horizon != truth.horizon || fitted.discount != truth.discount)
@@ -65,11 +66,11 @@ ReturnGapResult return_gap(const Pomdp& truth, const Pomdp& fitted, const Return
     return out;
   }
   const double den = ref.v_star - ref.v_uniform;
-  const Plan fitted_plan = plan(fitted, settings, replicate_key);
+  const Plan fitted_plan = plan(fitted, settings, replicate_key, stop);
   check_compatible(truth, fitted, fitted_plan);
 
   if (ref.v_star_exact) {
-    if (auto v = exact_plan_value(truth, fitted, fitted_plan, settings.exact_histories)) {
+    if (auto v = exact_plan_value(truth, fitted, fitted_plan, settings.exact_histories, stop)) {
       out.value = v->mean;
       out.exact = true;
       out.gap = (ref.v_star - v->mean) / den;
@@ -80,13 +81,14 @@ ReturnGapResult return_gap(const Pomdp& truth, const Pomdp& fitted, const Return
   // The true plan's returns are the same for every fit of a replicate: computed once when given.
   std::vector<double> own_star;
   if (star_returns == nullptr || static_cast<int>(star_returns->size()) != settings.rollouts) {
-    own_star = true_plan_returns(truth, ref, settings, replicate_key);
-    if (own_star.empty()) rollout_plan_value(truth, truth, ref.true_plan, settings.rollouts, replicate_key, &own_star);
+    own_star = true_plan_returns(truth, ref, settings, replicate_key, stop);
+    if (own_star.empty())
+      rollout_plan_value(truth, truth, ref.true_plan, settings.rollouts, replicate_key, &own_star, stop);
     star_returns = &own_star;
   }
   const std::vector<double>& r_star = *star_returns;
   std::vector<double> r_hat;
-  const PolicyValue vh = rollout_plan_value(truth, fitted, fitted_plan, settings.rollouts, replicate_key, &r_hat);
+  const PolicyValue vh = rollout_plan_value(truth, fitted, fitted_plan, settings.rollouts, replicate_key, &r_hat, stop);
   const int n = settings.rollouts;
   double mean = 0.0;
   for (int i = 0; i < n; ++i) mean += r_star[i] - r_hat[i];

@@ -36,6 +36,7 @@
 #include "core/pomdp.hpp"
 #include "core/seeding.hpp"
 #include "core/settings.hpp"
+#include "core/stop.hpp"
 
 namespace dobudget {
 
@@ -50,8 +51,9 @@ struct ReturnGapReference {
 };
 
 // Computed once per environment draw and reused by every replicate (key.replicate is ignored:
-// replicate 0 is used).
-ReturnGapReference prepare_return_gap(const Pomdp& truth, const PlannerSettings& settings, const StreamKey& key);
+// replicate 0 is used). `stop` (stop.hpp) is passed to the planner and the evaluations here and below.
+ReturnGapReference prepare_return_gap(const Pomdp& truth, const PlannerSettings& settings, const StreamKey& key,
+                                      const StopToken& stop = {});
 
 struct ReturnGapResult {
   std::optional<double> gap;  // empty when there is no room for planning
@@ -69,17 +71,19 @@ struct ReturnGapResult {
 // the same for every fit of the replicate, so a caller measuring many fits computes them once.
 ReturnGapResult return_gap(const Pomdp& truth, const Pomdp& fitted, const ReturnGapReference& reference,
                            const PlannerSettings& settings, const StreamKey& replicate_key,
-                           const std::vector<double>* star_returns = nullptr);
+                           const std::vector<double>* star_returns = nullptr, const StopToken& stop = {});
 
 // Per-rollout returns of the true plan on the replicate's rollout stream (empty when values are
 // exact or there is no room for planning).
 std::vector<double> true_plan_returns(const Pomdp& truth, const ReturnGapReference& reference,
-                                      const PlannerSettings& settings, const StreamKey& replicate_key);
+                                      const PlannerSettings& settings, const StreamKey& replicate_key,
+                                      const StopToken& stop = {});
 
 // max(1e-6 (1 + |V*|), 2 SE(V*)): below this V* - V_uniform leaves no room for planning.
 double room_threshold(double v_star, double v_star_se);
 
-// (v_star - v) / (v_star - v_uniform), or nullopt when v_star - v_uniform < room_threshold(v_star, v_star_se).
+// (v_star - v) / (v_star - v_uniform), or nullopt when v_star - v_uniform < room_threshold(v_star, v_star_se)
+// or is not finite (an infinite or NaN denominator is no scale to measure by).
 std::optional<double> normalised_gap(double v_star, double v_uniform, double v, double v_star_se = 0.0);
 
 }  // namespace dobudget

@@ -16,11 +16,16 @@ namespace dobudget {
 struct RunnerHooks {
   // Called once per finished unit, serialised (never two at once), from a worker thread.
   std::function<void(std::size_t unit_index, std::vector<RunRecord>&& rows)> on_unit;
-  // Polled between units; when it returns true no new unit is started.
+  // Polled between units, and inside each unit (stop.hpp: between EM evaluations, in model_kl, the
+  // planner and rollouts), from every worker thread at once: it must be thread-safe (read an
+  // atomic). When it returns true no new unit is started and the units in progress are abandoned:
+  // they throw Cancelled, are never passed to on_unit, and run_units returns normally.
   std::function<bool()> stop_requested;
 };
 
-// Runs units[i] for every i in `todo` (indices into `units`) on `threads` threads.
+// Runs units[i] for every i in `todo` (indices into `units`) on `threads` threads. A draw's
+// context (environment, return_gap reference) is built by the first unit of the draw that starts
+// and released when the last one of `todo` has finished, so at most about `threads` are alive.
 void run_units(const Study& study, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo, int threads,
                const RunnerHooks& hooks);
 

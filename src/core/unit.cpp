@@ -47,23 +47,24 @@ int fits_per_unit(const ScenarioSettings& s) {
   return static_cast<int>(keys.size());
 }
 
-DrawContext make_draw_context(const Study& study, int scenario, int draw) {
+DrawContext make_draw_context(const Study& study, int scenario, int draw, const StopToken& stop) {
   const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(scenario)].settings;
   const StreamKey key{study.seed, static_cast<std::uint64_t>(scenario), static_cast<std::uint64_t>(draw), 0};
   DrawContext c;
   c.environment = make_environment(s, key);
   for (Measure m : s.measures)
     if (m == Measure::return_gap)
-      c.return_gap = std::make_shared<const ReturnGapReference>(prepare_return_gap(c.environment.model, s.planner, key));
+      c.return_gap = std::make_shared<const ReturnGapReference>(prepare_return_gap(c.environment.model, s.planner, key, stop));
   return c;
 }
 
-std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawContext& ctx) {
+std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawContext& ctx, const StopToken& stop) {
   const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(u.scenario)].settings;
   const Environment& env = ctx.environment;
   const StreamKey key{study.seed, static_cast<std::uint64_t>(u.scenario), static_cast<std::uint64_t>(u.draw),
                       static_cast<std::uint64_t>(u.replicate)};
 
+  stop.poll();  // a unit started after a stop does nothing
   // Nested data: every budget is a prefix of the largest budget's episodes.
   Engine pilot_rng = make_engine(key, Purpose::pilot);
   Engine logged_rng = make_engine(key, Purpose::logged);
@@ -73,11 +74,11 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
   bool want_kl = false, want_gap = false;
   for (Measure m : s.measures) (m == Measure::model_kl ? want_kl : want_gap) = true;
   std::vector<double> star_returns;  // the true plan's rollout returns, shared by every fit of the replicate
-  if (want_gap) star_returns = true_plan_returns(env.model, *ctx.return_gap, s.planner, key);
+  if (want_gap) star_returns = true_plan_returns(env.model, *ctx.return_gap, s.planner, key, stop);
   EvaluationSet eval;
   if (want_kl) {
     Engine eval_rng = make_engine(key, Purpose::evaluation);
-    eval = make_evaluation_set(env.model, simulate(env, Regime::pilot, s.evaluation.trajectories, eval_rng));
+    eval = make_evaluation_set(env.model, simulate(env, Regime::pilot, s.evaluation.trajectories, eval_rng), stop);
   }
 
   struct Cell {
@@ -102,11 +103,12 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
               combine(combine(name_key(name(k.strategy)), static_cast<std::uint64_t>(k.logged)), static_cast<std::uint64_t>(k.pilot)));
           Cell c;
           const auto t0 = std::chrono::steady_clock::now();
-          c.fit = fit(views, k.strategy == Strategy::regime_aware, s.fit, env.model, fit_rng);
+          c.fit = fit(views, k.strategy == Strategy::regime_aware, s.fit, env.model, fit_rng, stop);
           c.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-          if (want_kl) c.kl = model_kl(eval, c.fit.model);
+          if (want_kl) c.kl = model_kl(eval, c.fit.model, stop);
           if (want_gap) {
-            const ReturnGapResult g = return_gap(env.model, c.fit.model, *ctx.return_gap, s.planner, key, &star_returns);
+            const ReturnGapResult g =
+                return_gap(env.model, c.fit.model, *ctx.return_gap, s.planner, key, &star_returns, stop);
             c.gap = g.gap;
             c.note = g.note;
           }

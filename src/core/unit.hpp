@@ -10,6 +10,7 @@
 #include "core/run_record.hpp"
 #include "core/seeding.hpp"
 #include "core/settings.hpp"
+#include "core/stop.hpp"
 
 namespace dobudget {
 
@@ -35,10 +36,13 @@ struct DrawContext {
   std::shared_ptr<const ReturnGapReference> return_gap;  // null unless return_gap is measured
 };
 
-DrawContext make_draw_context(const Study& study, int scenario, int draw);
+// `stop` (stop.hpp) is polled throughout; a requested stop throws Cancelled and nothing is returned.
+DrawContext make_draw_context(const Study& study, int scenario, int draw, const StopToken& stop = {});
 
 // Runs one unit. Rows come in the order strategy (as listed in the settings), logged budget,
-// pilot budget.
-std::vector<RunRecord> run_unit(const Study& study, const UnitId& unit, const DrawContext& context);
+// pilot budget. `stop` is polled in every long loop (fits, model_kl, planner, rollouts): a unit
+// that is stopped throws Cancelled and returns no rows, so no partial unit can be recorded.
+std::vector<RunRecord> run_unit(const Study& study, const UnitId& unit, const DrawContext& context,
+                                const StopToken& stop = {});
 
 }  // namespace dobudget

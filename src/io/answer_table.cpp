@@ -4,6 +4,7 @@
 #include "io/atomic_file.hpp"
 
 #include "io/csv.hpp"
+#include "io/text_escape.hpp"
 
 #include <fmt/format.h>
 
@@ -105,7 +106,8 @@ void write_answer_csv(const std::filesystem::path& path, const std::vector<Answe
 
 std::string format_answer_md(const std::string& study_name, const std::vector<std::string>& scenario_labels,
                              const std::vector<AnswerRow>& rows) {
-  std::string s = fmt::format("# Pilot episodes needed: {}\n\n", study_name);
+  // The study name and the labels are user text: markdown_text / markdown_cell (text_escape.hpp).
+  std::string s = fmt::format("# Pilot episodes needed: {}\n\n", markdown_text(study_name));
   s +=
       "How many pilot (interventional) episodes each way of using the data needs so that the fitted model "
       "meets the target, for each logged budget. Budgets are in episodes; needed values are rounded up to "
@@ -130,7 +132,7 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
       current_scenario = sc;
       const bool labelled = sc >= 0 && static_cast<std::size_t>(sc) < scenario_labels.size() &&
                             !scenario_labels[static_cast<std::size_t>(sc)].empty();
-      s += labelled ? fmt::format("\n## Scenario {}: {}\n", sc, scenario_labels[static_cast<std::size_t>(sc)])
+      s += labelled ? fmt::format("\n## Scenario {}: {}\n", sc, markdown_text(scenario_labels[static_cast<std::size_t>(sc)]))
                     : fmt::format("\n## Scenario {}\n", sc);
     }
     s += fmt::format("\n### {} at most {} ({})\n\n{}\n\n", name(first->measure), first->target,
@@ -162,7 +164,7 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
       s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.measure), r.target,
                        r.criterion == Criterion::mean ? std::string("mean") : "assurance " + percent(r.assurance),
                        name(r.strategy), r.logged, human_needed(r), human_interval(r), name(r.status),
-                       sc < scenario_labels.size() ? scenario_labels[sc] : std::to_string(r.scenario));
+                       sc < scenario_labels.size() ? markdown_cell(scenario_labels[sc]) : std::to_string(r.scenario));
     }
   }
 
@@ -241,7 +243,7 @@ std::vector<std::string> scenario_header(const Study* study) {
   if (study == nullptr || study->scenarios.size() < 2 || study->scenarios.front().assignments.empty())
     return {"scenario"};
   std::vector<std::string> h;
-  for (const auto& [key, value] : study->scenarios.front().assignments) h.push_back(key);
+  for (const auto& [key, value] : study->scenarios.front().assignments) h.push_back(printable_line(key));
   return h;
 }
 
@@ -249,7 +251,8 @@ std::vector<std::string> scenario_cells(const Study* study, int scenario) {
   if (study == nullptr || study->scenarios.size() < 2 || study->scenarios.front().assignments.empty())
     return {std::to_string(scenario)};
   std::vector<std::string> c;
-  for (const auto& [key, value] : study->scenarios.at(static_cast<std::size_t>(scenario)).assignments) c.push_back(value);
+  for (const auto& [key, value] : study->scenarios.at(static_cast<std::size_t>(scenario)).assignments)
+    c.push_back(printable_line(value));
   return c;
 }
 
@@ -307,7 +310,7 @@ std::string format_answer_table(const std::vector<AnswerRow>& rows, const Study*
     w.push_back(h);
     for (const auto& r : worst_case_over_scenarios(rows)) {
       auto line = answer_cells(r);
-      line.insert(line.begin(), study->scenarios.at(static_cast<std::size_t>(r.scenario)).label);
+      line.insert(line.begin(), printable_line(study->scenarios.at(static_cast<std::size_t>(r.scenario)).label));
       w.push_back(line);
     }
     std::vector<bool> wr = answer_right;

@@ -6,7 +6,9 @@
 // Numbers are written with fmt "{}": the shortest decimal that reads back to the same double
 // (so a parse round-trips exactly); infinities as "inf" / "-inf"; missing values (std::nullopt
 // or NaN: e.g. the assurance under the mean criterion, needed_pilot when not-reached, the
-// interval without bootstrap) as empty cells. No quoting is needed: no field contains a comma.
+// interval without bootstrap) as empty cells. No quoting is needed: no field contains a comma, and
+// no field holds user text (scenarios are given by index; measure, strategy, status and criterion
+// are the program's own names). A text column added later goes through csv_field (text_escape.hpp).
 // pandas.read_csv reads the file as is ("inf" parses as infinity, empty cells as NaN).
 //
 // Same conventions as io/csv.hpp (whose csv_number this uses).
@@ -33,7 +35,8 @@ void write_answer_csv(const std::filesystem::path& path, const std::vector<Answe
 
 // A readable page: one table per scenario and query (measure, target, assurance, criterion), the
 // criterion stated, the statuses explained, and the caution paragraph. scenario_labels[i] labels
-// scenario i (e.g. "logging.privilege=0.5"); missing or empty labels are left out.
+// scenario i (e.g. "logging.privilege=0.5"); missing or empty labels are left out. The study name
+// and the labels are user text, shown literally (markdown_text, markdown_cell: text_escape.hpp).
 std::string format_answer_md(const std::string& study_name, const std::vector<std::string>& scenario_labels,
                              const std::vector<AnswerRow>& rows);
 void write_answer_md(const std::filesystem::path& path, const std::string& study_name,
@@ -43,7 +46,8 @@ void write_answer_md(const std::filesystem::path& path, const std::string& study
 // Without a study, scenarios are shown by index. With a study that sweeps keys, one column per
 // swept key shows its value, and a second table gives the worst case over the swept scenarios for
 // each query, strategy and logged budget (the plan to budget for when the swept quantity is
-// unknown).
+// unknown). Keys, values and labels are shown through printable_line (text_escape.hpp): no
+// control character reaches the terminal.
 std::string format_answer_table(const std::vector<AnswerRow>& rows, const Study* study = nullptr);
 
 // The worst case over scenarios: for each (measure, target, assurance, criterion, strategy,

@@ -7,6 +7,8 @@
 namespace dobudget::io {
 
 void write_file_atomically(const std::filesystem::path& file, std::string_view contents);
-std::string read_file(const std::filesystem::path& file);  // throws std::runtime_error naming the file
+// The whole of a regular file; std::runtime_error naming the file when it is missing, unreadable or
+// not a regular file (a device or a pipe).
+std::string read_file(const std::filesystem::path& file);
 
 }  // namespace dobudget::io

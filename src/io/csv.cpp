@@ -13,14 +13,4 @@ std::string csv_number(double x) {
 
 std::string csv_number(const std::optional<double>& x) { return x ? csv_number(*x) : std::string(); }
 
-std::string csv_text(std::string_view s) {
-  if (s.find_first_of(",\"\n\r") == std::string_view::npos) return std::string(s);
-  std::string out = "\"";
-  for (char c : s) {
-    if (c == '"') out += '"';
-    out += c;
-  }
-  return out + "\"";
-}
-
 }  // namespace dobudget::io

@@ -4,6 +4,7 @@
 #include <fcntl.h>
 #include <fmt/format.h>
 #include <sys/file.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <cerrno>
@@ -12,14 +13,20 @@
 
 #include "io/atomic_file.hpp"
 #include "io/csv.hpp"
+#include "io/input_error.hpp"
 #include "io/runs_table.hpp"
 
 namespace dobudget::io {
 namespace {
 
-std::uint32_t crc32(std::string_view s) {
+constexpr std::string_view header_word = "dobudget-journal ";
+
+// CRC-32 of "<index field> TAB <payload>": the whole record but its checksum field.
+std::uint32_t record_crc(std::string_view index, std::string_view payload) {
   boost::crc_32_type crc;
-  crc.process_bytes(s.data(), s.size());
+  crc.process_bytes(index.data(), index.size());
+  crc.process_byte('\t');
+  crc.process_bytes(payload.data(), payload.size());
   return crc.checksum();
 }
 
@@ -36,6 +43,7 @@ std::string payload(const std::vector<RunRecord>& rows) {
   return p;
 }
 
+// The rows of a payload; throws (InputError or std::runtime_error) on anything malformed.
 std::vector<RunRecord> parse_payload(const std::string& p) {
   std::vector<RunRecord> rows;
   std::size_t start = 0;
@@ -56,31 +64,62 @@ std::vector<RunRecord> parse_payload(const std::string& p) {
   return rows;
 }
 
-// The unit index field: decimal digits only (the checksum covers the payload, not the index).
+// The unit index field: decimal digits only.
 std::size_t parse_index(std::string_view s) {
   std::size_t i = 0;
   const auto [end, ec] = std::from_chars(s.data(), s.data() + s.size(), i);
-  if (s.empty() || ec != std::errc() || end != s.data() + s.size()) throw std::runtime_error("malformed unit index");
+  if (s.empty() || s[0] == '-' || ec != std::errc() || end != s.data() + s.size())
+    throw std::runtime_error("malformed unit index");
   return i;
+}
+
+// What a parse error says about the record: "checksum mismatch", "model_kl: must be at least 0, ...".
+std::string reason(const std::exception& e) {
+  if (const auto* ie = dynamic_cast<const InputError*>(&e))
+    return ie->key.empty() ? ie->message : ie->key + ": " + ie->message;
+  return e.what();
+}
+
+// The length of the header line (with its LF) when `text` starts with one, else 0.
+std::size_t header_length(const std::string& text) {
+  if (text.compare(0, header_word.size(), header_word) != 0) return 0;
+  const std::size_t nl = text.find('\n');
+  return nl == std::string::npos ? 0 : nl + 1;
 }
 
 }  // namespace
 
-std::string Journal::record(std::size_t unit_index, const std::vector<RunRecord>& rows) {
-  const std::string body = payload(rows);
-  return fmt::format("{}\t{:08x}\t{}\n", unit_index, crc32(body), body);
+std::string Journal::header(const std::string& study_hash) {
+  return fmt::format("{}{} study {}\n", header_word, format_version, study_hash);
 }
 
-std::map<std::size_t, std::vector<RunRecord>> Journal::parse(const std::string& text, std::size_t* intact_bytes,
-                                                             bool* torn, const std::string& source) {
-  std::map<std::size_t, std::vector<RunRecord>> units;
-  std::size_t pos = 0;
+std::string Journal::record(std::size_t unit_index, const std::vector<RunRecord>& rows) {
+  const std::string index = std::to_string(unit_index);
+  const std::string body = payload(rows);
+  return fmt::format("{}\t{:08x}\t{}\n", index, record_crc(index, body), body);
+}
+
+Journal::Units Journal::parse(const std::string& text, std::size_t* intact_bytes, bool* torn, const std::string& source,
+                              const RecordCheck& check) {
+  Units units;
+  std::map<std::size_t, int> line_of;  // unit index -> the line that recorded it
   *torn = false;
-  int line = 0;
+  std::size_t pos = header_length(text);
+  int line = pos > 0 ? 1 : 0;
+  const bool header_begun = header_word.compare(0, std::min(text.size(), header_word.size()), text, 0,
+                                                std::min(text.size(), header_word.size())) == 0;
+  if (pos == 0 && !text.empty() && header_begun && text.find('\n') == std::string::npos) {
+    // Only the beginning of a header line, without its LF: torn while the journal was created.
+    *torn = true;
+    *intact_bytes = 0;
+    return units;
+  }
   while (pos < text.size()) {
     ++line;
     const std::size_t nl = text.find('\n', pos);
     const bool last = nl == std::string::npos || nl + 1 == text.size();
+    std::size_t index = 0;
+    std::vector<RunRecord> rows;
     try {
       if (nl == std::string::npos) throw std::runtime_error("no end of line");
       const std::string_view rec(text.data() + pos, nl - pos);
@@ -88,43 +127,139 @@ std::map<std::size_t, std::vector<RunRecord>> Journal::parse(const std::string& 
       const std::size_t t2 = t1 == std::string_view::npos ? t1 : rec.find('\t', t1 + 1);
       if (t1 == std::string_view::npos || t2 == std::string_view::npos) throw std::runtime_error("missing fields");
       const std::string body(rec.substr(t2 + 1));
-      if (fmt::format("{:08x}", crc32(body)) != rec.substr(t1 + 1, t2 - t1 - 1))
+      if (fmt::format("{:08x}", record_crc(rec.substr(0, t1), body)) != rec.substr(t1 + 1, t2 - t1 - 1))
         throw std::runtime_error("checksum mismatch");
-      const std::size_t index = parse_index(rec.substr(0, t1));
-      units[index] = parse_payload(body);
+      index = parse_index(rec.substr(0, t1));
+      rows = parse_payload(body);
     } catch (const std::exception& e) {
       if (!last)
-        throw std::runtime_error(fmt::format(
-            "{}: record {} (line {}) is damaged ({}); records are only ever appended, so an interruption can tear "
-            "only the last one: this file was altered, or the disk is failing",
-            source, line, line, e.what()));
+        throw InputError(source, line, "",
+                         fmt::format("damaged record ({}); records are only ever appended, so an interruption can "
+                                     "tear only the last one: this file was altered, or the disk is failing",
+                                     reason(e)));
       *torn = true;
       break;
     }
+    // An intact record: it must be new, and its unit's.
+    if (const auto seen = line_of.find(index); seen != line_of.end())
+      throw InputError(source, line, "",
+                       fmt::format("unit {} is recorded twice (lines {} and {}); a unit is only ever recorded once, "
+                                   "so this file was altered",
+                                   index, seen->second, line));
+    if (check) {
+      const std::string problem = check(index, rows);
+      if (!problem.empty())
+        throw InputError(source, line, "", fmt::format("the record of unit {} does not belong to it: {}", index, problem));
+    }
+    line_of[index] = line;
+    units[index] = std::move(rows);
     pos = nl + 1;
   }
   *intact_bytes = pos;
   return units;
 }
 
-Journal::Journal(const std::filesystem::path& file) {
-  file_ = std::fopen(file.c_str(), "ab");
-  if (file_ == nullptr) throw std::runtime_error("cannot open " + file.string() + " for appending");
+Journal::Units Journal::parse_file(const std::string& text, const std::string& study_hash, std::size_t* intact_bytes,
+                                   bool* torn, const std::string& source, const RecordCheck& check) {
+  *intact_bytes = 0;
+  *torn = false;
+  if (text.empty()) return {};
+  const std::string expected = header(study_hash);
+  const std::size_t nl = text.find('\n');
+  if (nl == std::string::npos && expected.compare(0, text.size(), text) == 0) {
+    *torn = true;  // the header itself was torn: nothing was recorded yet
+    return {};
+  }
+  const std::string first = text.substr(0, nl == std::string::npos ? text.size() : nl + 1);
+  if (first != expected) {
+    const std::string shown = first.substr(0, std::min<std::size_t>(first.find('\n'), 60));
+    if (first.compare(0, header_word.size(), header_word) != 0)
+      throw InputError(source, 1, "",
+                       fmt::format("has no journal header (expected '{}'): it was written by an older dobudget, or it "
+                                   "is not a dobudget journal; use a fresh --out directory",
+                                   expected.substr(0, expected.size() - 1)));
+    const std::string version_prefix = fmt::format("{}{} study ", header_word, format_version);
+    if (first.compare(0, version_prefix.size(), version_prefix) != 0)
+      throw InputError(source, 1, "",
+                       fmt::format("is a journal of another format ('{}'; this dobudget reads format {}); use the "
+                                   "dobudget that wrote it, or a fresh --out directory",
+                                   shown, format_version));
+    throw InputError(source, 1, "",
+                     fmt::format("belongs to another study (its header names study hash {}, this study has hash {}); "
+                                 "use a fresh --out directory",
+                                 shown.substr(version_prefix.size()), study_hash));
+  }
+  return parse(text, intact_bytes, torn, source, check);
+}
+
+namespace {
+
+// Opens `file` for appending (creating it if needed) and takes its exclusive lock, the pattern of a
+// lock file that others may remove: after the lock is taken, the path must still name the file
+// locked (else it was removed or replaced meanwhile, and we open again). *created: this call
+// created the file. Returns the descriptor; throws when another process holds the lock.
+int open_locked(const std::filesystem::path& file, bool* created) {
+  for (int attempt = 0; attempt < 100; ++attempt) {
+    *created = true;
+    int fd = ::open(file.c_str(), O_WRONLY | O_APPEND | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
+    if (fd < 0 && errno == EEXIST) {
+      *created = false;
+      fd = ::open(file.c_str(), O_WRONLY | O_APPEND | O_CLOEXEC);
+    }
+    if (fd < 0) {
+      if (errno == ENOENT) continue;  // removed between the two opens
+      throw std::runtime_error("cannot open " + file.string() + " for appending");
+    }
+    if (::flock(fd, LOCK_EX | LOCK_NB) != 0 && errno == EWOULDBLOCK) {
+      ::close(fd);
+      throw std::runtime_error(file.parent_path().string() + " is being written by another dobudget process (" +
+                               file.string() +
+                               " is locked: a run on the same directory is still going); wait for it to finish, or "
+                               "stop it, then run again");
+    }
+    struct stat held {}, named {};
+    if (::fstat(fd, &held) == 0 && ::stat(file.c_str(), &named) == 0 && held.st_dev == named.st_dev &&
+        held.st_ino == named.st_ino)
+      return fd;
+    ::close(fd);  // the file we locked is no longer the journal: try again
+  }
+  throw std::runtime_error("cannot lock " + file.string() + ": it keeps being removed or replaced");
+}
+
+}  // namespace
+
+Journal::Journal(const std::filesystem::path& file, const std::string& study_hash,
+                 const std::function<void()>& while_locked, const RecordCheck& check) {
+  bool created = false;
+  const int fd = open_locked(file, &created);
+  file_ = ::fdopen(fd, "ab");
+  if (file_ == nullptr) {
+    ::close(fd);
+    throw std::runtime_error("cannot open " + file.string() + " for appending");
+  }
   try {
-    if (::flock(::fileno(file_), LOCK_EX | LOCK_NB) != 0 && errno == EWOULDBLOCK)
-      throw std::runtime_error(file.string() +
-                               " is being written by another dobudget process (a run on the same directory is still "
-                               "going); wait for it to finish, or stop it, then run again");
+    if (while_locked) while_locked();
     const std::string text = read_file(file);
     std::size_t intact = 0;
     try {
-      units_ = parse(text, &intact, &torn_, file.string());
-    } catch (const std::runtime_error& e) {
-      throw std::runtime_error(std::string(e.what()) +
-                               ". Delete that line to have its unit computed again, or use a fresh --out directory");
+      units_ = parse_file(text, study_hash, &intact, &torn_, file.string(), check);
+    } catch (const InputError& e) {
+      throw InputError(e.file, e.line, e.key,
+                       e.line > 1 ? e.message + ". Delete that line to have its unit computed again, or use a fresh "
+                                                "--out directory"
+                                  : e.message);
     }
     if (intact < text.size()) std::filesystem::resize_file(file, intact);
+    if (intact == 0) {
+      const std::string h = header(study_hash);
+      if (std::fwrite(h.data(), 1, h.size(), file_) != h.size() || std::fflush(file_) != 0)
+        throw std::runtime_error("cannot write " + file.string());
+    }
   } catch (...) {
+    // Leave nothing behind: a journal this call created and nothing was written to is removed
+    // (still under the lock; a process waiting for it finds the path gone and opens afresh).
+    std::error_code ec;
+    if (created && std::filesystem::file_size(file, ec) == 0 && !ec) std::filesystem::remove(file, ec);
     std::fclose(file_);
     file_ = nullptr;
     throw;

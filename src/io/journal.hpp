@@ -1,12 +1,20 @@
 // The unit journal of a run directory (units.journal): one line per finished unit, appended and
 // flushed as the unit finishes, so that an interrupted `plan` (even by SIGKILL) loses at most the
-// units still running. Line format:
-//   <unit index> TAB <CRC-32 of the payload, 8 hex digits> TAB <payload> LF
+// units still running. The first line names the format and the study the journal belongs to:
+//   dobudget-journal 2 study <study hash, 16 hex digits> LF
+// then one record per line:
+//   <unit index> TAB <CRC-32 of "<unit index> TAB <payload>", 8 hex digits> TAB <payload> LF
 // where the payload is the unit's rows, each a runs.csv line followed by ",<fit_seconds>",
-// joined by ';'. A last line without LF, with a CRC mismatch or that does not parse is a torn
-// record: it is dropped (truncated away) and the unit is computed again; it is never half-read.
-// A damaged record before the last cannot come from an interruption (records are only ever
-// appended): it is an error naming the file and the record.
+// joined by ';'. The checksum covers the whole record, index included, so one flipped bit
+// anywhere in a line is caught (CRC-32 detects every burst error up to 32 bits; Peterson and
+// Brown 1961, "Cyclic codes for error detection").
+//
+// A last line without LF, with a CRC mismatch or that does not parse is a torn record: it is
+// dropped (truncated away) and the unit is computed again; it is never half-read. A damaged record
+// before the last cannot come from an interruption (records are only ever appended): it is an
+// error naming the file and the line. A journal without the header line (format 1, or not a
+// journal), of another format version or naming another study is refused. A record that parses
+// but fails the caller's check (rows that are not its unit's) or repeats a unit is refused too.
 //
 // Durability: append() hands the record to the operating system (fflush), which survives the
 // process being killed (SIGKILL, a scheduler's pre-emption, an out-of-memory kill) but not a
@@ -14,11 +22,13 @@
 //
 // One writer at a time: the constructor takes an exclusive advisory lock (flock) on the file and
 // refuses a journal that another process holds open, so a run resubmitted while the first one
-// still runs cannot interleave records. Where the file system does not support flock, no lock is
-// taken.
+// still runs cannot interleave records. The run directory claims itself while holding this lock
+// (run_directory.hpp), so two runs racing for a new directory cannot both claim it. Where the
+// file system does not support flock, no lock is taken.
 #pragma once
 #include <cstdio>
 #include <filesystem>
+#include <functional>
 #include <map>
 #include <string>
 #include <vector>
@@ -29,27 +39,47 @@ namespace dobudget::io {
 
 class Journal {
  public:
-  // Opens (creating if needed) the journal at `file`, reads every intact record and truncates
-  // a torn tail. Throws std::runtime_error if a record other than the last is damaged (the
-  // message names the file and the record), or if another process is writing the journal.
-  explicit Journal(const std::filesystem::path& file);
+  using Units = std::map<std::size_t, std::vector<RunRecord>>;
+  // Checks one parsed record: returns an empty string when the rows belong to unit `index`, else
+  // what is wrong (e.g. "unit 9 does not exist").
+  using RecordCheck = std::function<std::string(std::size_t index, const std::vector<RunRecord>& rows)>;
+
+  inline static constexpr int format_version = 2;
+
+  // Opens (creating if needed) the journal at `file` of the study with hash `study_hash` and takes
+  // its lock; then runs `while_locked` (when given), reads every intact record (each passed to
+  // `check`, when given), truncates a torn tail and writes the header line to an empty journal.
+  // Throws std::runtime_error if another process is writing the journal, InputError (file, line)
+  // for a missing or foreign header, a damaged record other than the last, or a record that fails
+  // `check`; whatever `while_locked` throws is passed on. Nothing is changed when it throws.
+  Journal(const std::filesystem::path& file, const std::string& study_hash,
+          const std::function<void()>& while_locked = {}, const RecordCheck& check = {});
   ~Journal();
   Journal(const Journal&) = delete;
   Journal& operator=(const Journal&) = delete;
 
-  const std::map<std::size_t, std::vector<RunRecord>>& units() const { return units_; }
+  const Units& units() const { return units_; }
   bool torn_tail_dropped() const { return torn_; }
 
   // Appends one finished unit and flushes it to the operating system.
   void append(std::size_t unit_index, const std::vector<RunRecord>& rows);
 
-  // Parses a whole journal text (exposed for merge and tests); throws std::runtime_error on damage
-  // before the end, naming `source` (the file, in messages) and the record (1-based line).
-  // *intact_bytes receives the length of the intact prefix, *torn whether a torn last record was
-  // left out.
-  static std::map<std::size_t, std::vector<RunRecord>> parse(const std::string& text, std::size_t* intact_bytes,
-                                                             bool* torn,
-                                                             const std::string& source = "units.journal");
+  // The header line (with its LF) of a journal of the study with hash `study_hash`.
+  static std::string header(const std::string& study_hash);
+
+  // Parses records (exposed for merge, MPI messages and tests); a header line first, if any, is
+  // skipped without checking its study. Throws InputError on damage before the end, naming
+  // `source` (the file, in messages) and the 1-based line; also for a unit recorded twice and a
+  // record failing `check`. *intact_bytes receives the length of the intact prefix, *torn whether
+  // a torn last record was left out.
+  static Units parse(const std::string& text, std::size_t* intact_bytes, bool* torn,
+                     const std::string& source = "units.journal", const RecordCheck& check = {});
+
+  // A whole journal file: its header must name format 2 and `study_hash` (InputError at line 1
+  // otherwise), then parse(). An empty text, or a header torn before its LF, has no records
+  // (*intact_bytes = 0, and *torn is set for a torn header).
+  static Units parse_file(const std::string& text, const std::string& study_hash, std::size_t* intact_bytes,
+                          bool* torn, const std::string& source = "units.journal", const RecordCheck& check = {});
 
   // One record (a whole line, with its LF) as append() writes it.
   static std::string record(std::size_t unit_index, const std::vector<RunRecord>& rows);
@@ -59,7 +89,7 @@ class Journal {
   static bool in_use(const std::filesystem::path& file);
 
  private:
-  std::map<std::size_t, std::vector<RunRecord>> units_;
+  Units units_;
   std::FILE* file_ = nullptr;
   bool torn_ = false;
 };

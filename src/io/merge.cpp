@@ -10,6 +10,9 @@
 #include "core/unit.hpp"
 #include "io/answer_table.hpp"
 #include "io/atomic_file.hpp"
+#include "io/expected_rows.hpp"
+#include "io/finished_run.hpp"
+#include "io/input_error.hpp"
 #include "io/journal.hpp"
 #include "io/study_file.hpp"
 
@@ -82,29 +85,6 @@ void check_is_run_directory(const fs::path& dir) {
   if (!fs::is_directory(dir)) throw MergeError(dir.string() + " is not a directory");
   if (!fs::exists(dir / "study.resolved.yaml"))
     throw MergeError(dir.string() + " is not a dobudget run directory (it has no study.resolved.yaml)");
-}
-
-std::size_t rows_per_unit(const ScenarioSettings& s) {
-  return s.strategies.size() * s.logged_budgets.size() * s.pilot_budgets.size();
-}
-
-// Checks that the journal record of unit `index` holds that unit's rows.
-void check_record(const fs::path& file, std::size_t index, const std::vector<RunRecord>& rows,
-                  const std::vector<UnitId>& units, const Study& study) {
-  if (index >= units.size())
-    throw MergeError(fmt::format("{}: holds a record of unit {}, but the study has units 0 to {}; the journal does not "
-                                 "belong to this study",
-                                 file.string(), index, units.size() - 1));
-  const UnitId& u = units[index];
-  const std::size_t expected = rows_per_unit(study.scenarios[static_cast<std::size_t>(u.scenario)].settings);
-  if (rows.size() != expected)
-    throw MergeError(fmt::format("{}: the record of {} has {} rows, expected {}", file.string(), describe_unit(index, u),
-                                 rows.size(), expected));
-  for (const RunRecord& r : rows)
-    if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
-      throw MergeError(fmt::format("{}: the record of {} holds a row of (scenario {}, environment draw {}, replicate "
-                                   "{}); the journal does not belong to this study",
-                                   file.string(), describe_unit(index, u), r.scenario, r.environment, r.replicate));
 }
 
 std::string duplicate_message(std::size_t index, const UnitId& unit, const MergeInput& a, const MergeInput& b,
@@ -207,7 +187,10 @@ Merge prepare_merge(const std::vector<fs::path>& dirs, const fs::path& out) {
           dirs[k].string(), dirs[0].string(), study_hash(theirs), dirs[k].string(), study_hash(m.resolved_yaml),
           dirs[0].string()));
   }
+  // Each input's study.resolved.yaml as planned (the hash its manifest and journal record).
+  for (const auto& dir : dirs) check_recorded_study_hash(dir, m.resolved_yaml);
   m.study = load_study(dirs[0] / "study.resolved.yaml");
+  const std::string hash = study_hash(m.resolved_yaml);
   const fs::path out_canonical = canonical_or_same(out);
   for (std::size_t k = 0; k < dirs.size(); ++k)
     if (canonical[k] == out_canonical)
@@ -254,8 +237,13 @@ Merge prepare_merge(const std::vector<fs::path>& dirs, const fs::path& out) {
     bool torn = false;
     std::map<std::size_t, std::vector<RunRecord>> records;
     try {
-      records = Journal::parse(text, &intact, &torn, file.string());
-    } catch (const std::runtime_error& e) {
+      // The header must name this study; every record must be intact and hold its unit's rows.
+      records = Journal::parse_file(text, hash, &intact, &torn, file.string(),
+                                    [&](std::size_t index, const std::vector<RunRecord>& rows) {
+                                      return unit_rows_problem(m.study, units, index, rows);
+                                    });
+    } catch (const InputError& e) {
+      if (e.line <= 1) throw MergeError(e.what());
       throw MergeError(fmt::format("{}. Delete that line, run that directory's plan command again to compute its "
                                    "unit ({}), then merge",
                                    e.what(), resume_command(input)));
@@ -267,7 +255,6 @@ Merge prepare_merge(const std::vector<fs::path>& dirs, const fs::path& out) {
           "command again ({}), which drops the torn record and computes that unit again; then merge",
           file.string(), resume_command(input)));
     for (auto& [index, rows] : records) {
-      check_record(file, index, rows, units, m.study);
       if (owner[index] >= 0) {
         duplicates.push_back({index, owner[index], static_cast<int>(k)});
         continue;
@@ -288,9 +275,17 @@ Merge prepare_merge(const std::vector<fs::path>& dirs, const fs::path& out) {
   for (int o : owner)
     if (o < 0) throw MergeError(missing_message(owner, units, m.inputs, split));
 
+  m.journal = Journal::header(hash);
   for (std::size_t i = 0; i < units.size(); ++i) {
     m.journal += Journal::record(i, unit_rows[i]);
     m.rows.insert(m.rows.end(), unit_rows[i].begin(), unit_rows[i].end());
+  }
+  // Every record was checked against its unit and every unit is present once: the full, consistent
+  // set of rows (a failure here is a bug, not the user's input).
+  try {
+    check_rows_against_study(m.study, m.rows, (out / "runs.csv").string());
+  } catch (const InputError& e) {
+    throw std::logic_error(std::string("the merged rows are inconsistent: ") + e.what());
   }
   m.answers = compute_study_answers(m.study, m.rows);
   m.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();

@@ -15,8 +15,10 @@
 //   * every input journal is intact: a torn last record (a run interrupted while writing) means
 //     the input must be resumed first; a damaged record before the last is named;
 //   * no input is still being written by a running `plan` (its journal lock is held);
-//   * every record belongs to the study (unit index in range, rows of that unit, as many rows as
-//     the unit has cells);
+//   * every input's study.resolved.yaml has the study hash its manifest.json and journal header
+//     recorded at planning time (check_recorded_study_hash), and every journal header names it;
+//   * every record belongs to the study (unit index in range, exactly that unit's rows in order:
+//     unit_rows_problem, expected_rows.hpp); a unit recorded twice in one journal is named;
 //   * together the journals hold every unit exactly once: a unit in two inputs is named, with
 //     both directories; missing units are counted and attributed to their shards K/N when the
 //     inputs' manifest.json give a shard, otherwise the first few are named.

@@ -61,6 +61,28 @@ class ModelReader {
     return v;
   }
 
+  // A declared size: a whole number in [1, max_model_size].
+  int size(const Located& v) const {
+    const int n = in_.whole_int(v, 1);
+    if (n > max_model_size)
+      in_.fail(v, fmt::format("must be at most {} (the largest size the computation holds), got {}", max_model_size, n));
+    return n;
+  }
+
+  // Rewards: n finite numbers with |r| <= max_abs_reward.
+  Vector rewards(const Located& list, int n) const {
+    const std::vector<Located> items = sized(list, n, "entry", "entries", "observations");
+    Vector v(n);
+    for (int i = 0; i < n; ++i) {
+      v(i) = in_.number(items[i]);
+      if (!(std::abs(v(i)) <= max_abs_reward))
+        in_.fail(items[i], fmt::format("must be at most {:g} in absolute value (so that sums of rewards over the "
+                                       "horizon stay finite), got {}",
+                                       max_abs_reward, v(i)));
+    }
+    return v;
+  }
+
   // rows x cols numbers, one list per row.
   Matrix matrix(const Located& list, int rows, int cols, std::string_view rows_name, std::string_view cols_name,
                 bool probability) const {
@@ -115,9 +137,9 @@ Environment parse_model(const YAML::Node& node, const std::string& file, const s
 
   Environment env;
   Pomdp& m = env.model;
-  m.states = in.whole_int(need("states"), 1);
-  m.actions = in.whole_int(need("actions"), 1);
-  m.observations = in.whole_int(need("observations"), 1);
+  m.states = read.size(need("states"));
+  m.actions = read.size(need("actions"));
+  m.observations = read.size(need("observations"));
   m.horizon = horizon;
   m.discount = discount;
 
@@ -125,7 +147,7 @@ Environment parse_model(const YAML::Node& node, const std::string& file, const s
   const std::vector<Located> per_action = read.sized(need("transitions"), m.actions, "matrix", "matrices", "actions");
   for (const Located& t : per_action) m.transitions.push_back(read.matrix(t, m.states, m.states, "states", "states", true));
   m.emissions = read.matrix(need("emissions"), m.states, m.observations, "states", "observations", true);
-  m.rewards = read.row(need("rewards"), m.observations, "observations", false);
+  m.rewards = read.rewards(need("rewards"), m.observations);
   if (const Located* p = find("logging_policy"))
     env.logging_policy = read.matrix(*p, m.states, m.actions, "states", "actions", true);
 

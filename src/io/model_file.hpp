@@ -18,7 +18,9 @@
 //     - [0.1, 0.9]
 //
 // Every row of initial, transitions, emissions and logging_policy must be a probability vector:
-// non-negative entries summing to 1 within 1e-9. Rewards must be finite. Horizon and discount are
+// non-negative entries summing to 1 within 1e-9. Rewards must be finite, |r| <= max_abs_reward.
+// states, actions and observations are at most max_model_size; they are checked before any
+// matrix is read, so a file declaring huge sizes is refused without allocating. Horizon and discount are
 // not part of a model file: they stay in the study (environment.horizon, environment.discount).
 // When logging_policy is absent the Environment's logging_policy is left empty (0 x 0) and the
 // core builds it from the study's `logging` settings.
@@ -31,6 +33,18 @@
 #include "core/pomdp.hpp"
 
 namespace dobudget::io {
+
+// The largest number of states, actions or observations (and latent values, fit.latent_states):
+// 200. The forward-backward tables hold A x O x Z x Z entries and parts of their index arithmetic
+// are in int: 200^4 = 1.6e9 < 2^31 - 1 cannot overflow. (Such a model is already far beyond what a
+// study can fit in reasonable time: one E-step costs about observations x Z^2.)
+inline constexpr int max_model_size = 200;
+
+// The largest |reward|: 1e100. A return sums at most H <= 10^4 rewards (environment.horizon), the
+// return_gap takes differences of returns (<= 2e104) and standard errors sum their squares over
+// at most 10^7 rollouts (<= 4e215 x 1e7 = 4e222), all far below the double range (1.8e308), while
+// a reward of 1e308 makes a plan's values infinite and its choices undefined.
+inline constexpr double max_abs_reward = 1e100;
 
 // Reads a model file and gives it the study's horizon and discount (which must be valid: horizon
 // >= 1, discount in (0, 1]; std::invalid_argument otherwise). Throws InputError naming the file,

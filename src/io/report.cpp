@@ -2,7 +2,6 @@
 #include "io/report.hpp"
 
 #include <fmt/format.h>
-#include <sys/wait.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -16,8 +15,11 @@
 
 #include "io/answer_table.hpp"
 #include "io/atomic_file.hpp"
+#include "io/child_process.hpp"
+#include "io/finished_run.hpp"
 #include "io/runs_table.hpp"
 #include "io/study_file.hpp"
+#include "io/text_escape.hpp"
 
 namespace dobudget::io {
 
@@ -35,27 +37,6 @@ constexpr const char* kCaution =
 std::string dat_number(double x) { return std::isfinite(x) ? fmt::format("{}", x) : std::string("NaN"); }
 
 std::string text_number(double x) { return fmt::format("{}", x); }
-
-// A gnuplot single-quoted string: no escapes are interpreted, a ' is written ''.
-std::string gp_quote(std::string_view s) {
-  std::string out = "'";
-  for (char c : s) out += c == '\'' ? std::string("''") : std::string(1, c);
-  return out + "'";
-}
-
-// A gnuplot double-quoted string (for titles with a line break).
-std::string gp_dquote(std::string_view s) {
-  std::string out = "\"";
-  for (char c : s) {
-    if (c == '"' || c == '\\') out += '\\';
-    if (c == '\n') {
-      out += "\\n";
-      continue;
-    }
-    out += c;
-  }
-  return out + "\"";
-}
 
 std::string join(const std::vector<std::string>& items, std::string_view sep) {
   std::string s;
@@ -159,13 +140,8 @@ std::string blocks(const std::vector<Cell>& cells, Line line) {
   return s;
 }
 
-std::string comment_lines(std::string_view text) {
-  std::string s;
-  std::istringstream in{std::string(text)};
-  std::string line;
-  while (std::getline(in, line)) s += "# " + line + "\n";
-  return s;
-}
+// The title comment of a .dat file: one line whatever the title holds (user text: printable_line).
+std::string title_comment(std::string_view text) { return "# " + printable_line(text) + "\n"; }
 
 // ---- gnuplot --------------------------------------------------------------------------------------
 
@@ -175,7 +151,7 @@ std::string terminal_line(const std::string& terminal, const std::string& output
   else if (terminal == "png") t = "set terminal png size 1000,620 truecolor noenhanced";
   else if (terminal == "svg") t = "set terminal svg size 1000,620 dynamic font 'sans,11' noenhanced";
   else t = "set terminal " + terminal + " noenhanced";
-  return t + "\nset output " + gp_quote(output) + "\n";
+  return t + "\nset output " + gnuplot_string(output) + "\n";
 }
 
 std::string image_extension(const std::string& terminal) {
@@ -201,7 +177,7 @@ std::string x_axis(const std::vector<Series<Cell>>& series) {
 
 struct FigureText {
   std::string base;   // file name without extension
-  std::string title;  // may hold a line break
+  std::vector<std::string> title;  // its lines, user text as is (gnuplot_lines quotes them)
 };
 
 std::string header(const FigureText& f, const std::string& what) {
@@ -236,11 +212,11 @@ void line_parts(std::vector<std::string>& parts, const std::vector<Series<Cell>>
     if (role[i] == Role::main)
       parts.push_back(fmt::format("data index {} using {} ", i, columns) +
                       fmt::format(fmt::runtime(solid), point_type(series[i].strategy), colour(series[i].strategy)) +
-                      " title " + gp_quote(series_title(series[i])));
+                      " title " + gnuplot_string(series_title(series[i])));
   for (std::size_t i = 0; i < series.size(); ++i)
     if (role[i] == Role::other)
       parts.push_back("NaN " + fmt::format(fmt::runtime(dashed), point_type(series[i].strategy), colour(series[i].strategy)) +
-                      " title " + gp_quote(series_title(series[i])));
+                      " title " + gnuplot_string(series_title(series[i])));
 }
 
 std::string measure_script(const FigureText& f, const std::string& terminal, const std::string& image, Measure m,
@@ -248,7 +224,7 @@ std::string measure_script(const FigureText& f, const std::string& terminal, con
                            const std::vector<Role>& role) {
   std::string s = header(f, fmt::format("{} against pilot episodes", name(m)));
   s += terminal_line(terminal, image);
-  s += "set title " + gp_dquote(f.title) + "\n";
+  s += "set title " + gnuplot_lines(f.title) + "\n";
   s += x_axis(series);
   if (m == Measure::model_kl) {
     s += "set ylabel 'model_kl (nats per observation, log scale)'\nset logscale y\nset format y '%g'\n";
@@ -256,9 +232,9 @@ std::string measure_script(const FigureText& f, const std::string& terminal, con
     s += "set ylabel 'return_gap (normalised: 0 = plans as well as the true model)'\n";
   }
   s += common_style();
-  s += "set key title \"line: median over pairs\\nband: 10% to 90% of pairs\"\n";
+  s += "set key title " + gnuplot_lines({"line: median over pairs", "band: 10% to 90% of pairs"}) + "\n";
   s += "set style fill transparent solid 0.15 noborder\n";
-  s += "data = " + gp_quote(f.base + ".dat") + "\n";
+  s += "data = " + gnuplot_string(f.base + ".dat") + "\n";
   if (target) s += "target = " + text_number(*target) + "\n";
   s += "# columns: 1 strategy, 2 logged, 3 pilot, 4 count, 5 mean, 6 sd, 7 median, 8 q10, 9 q90\n";
   std::vector<std::string> parts;
@@ -279,7 +255,7 @@ std::string success_script(const FigureText& f, const std::string& terminal, con
                            const std::vector<Role>& role) {
   std::string s = header(f, fmt::format("success fraction of {} against pilot episodes", name(m)));
   s += terminal_line(terminal, image);
-  s += "set title " + gp_dquote(f.title) + "\n";
+  s += "set title " + gnuplot_lines(f.title) + "\n";
   s += x_axis(series);
   s += "target = " + text_number(target) + "\n";
   s += "assurance = " + text_number(assurance) + "\n";
@@ -287,7 +263,7 @@ std::string success_script(const FigureText& f, const std::string& terminal, con
   s += "set yrange [-0.03:1.03]\nset ytics 0.1\n";
   s += common_style();
   s += "set key title 'raw fraction per budget'\n";
-  s += "data = " + gp_quote(f.base + ".dat") + "\n";
+  s += "data = " + gnuplot_string(f.base + ".dat") + "\n";
   s += "# columns: 1 strategy, 2 logged, 3 pilot, 4 pairs, 5 successes, 6 fraction\n";
   std::vector<std::string> parts;
   line_parts(parts, series, role, "3:6");
@@ -297,42 +273,33 @@ std::string success_script(const FigureText& f, const std::string& terminal, con
   return s;
 }
 
+// The last lines of a program's messages, each made printable (gnuplot echoes script lines, which
+// can hold user text).
 std::string tail(const std::string& text, std::size_t max_lines) {
   std::vector<std::string> lines;
   std::istringstream in(text);
   std::string line;
   while (std::getline(in, line))
-    if (!line.empty()) lines.push_back(line);
+    if (!line.empty()) lines.push_back(printable_line(line));
   if (lines.size() > max_lines) lines.erase(lines.begin(), lines.end() - static_cast<std::ptrdiff_t>(max_lines));
   return join(lines, "\n");
 }
 
-// Runs gnuplot on `script` inside `folder`; throws std::runtime_error with gnuplot's messages.
+// Runs gnuplot on `script` inside `folder` (no shell: child_process.hpp); throws std::runtime_error
+// with gnuplot's messages.
 void run_gnuplot(const fs::path& gnuplot, const fs::path& folder, const std::string& script, const std::string& image) {
-  const std::string log = script + ".log";
-  const std::string command = "cd -- " + shell_quote(folder.string()) + " && " + shell_quote(gnuplot.string()) + " " +
-                              shell_quote(script) + " >" + shell_quote(log) + " 2>&1";
-  const int status = std::system(command.c_str());
-  std::string messages;
-  std::error_code ec;
-  if (fs::exists(folder / log, ec)) {
-    try {
-      messages = read_file(folder / log);
-    } catch (const std::exception&) {
-    }
-    fs::remove(folder / log, ec);
-  }
-  const bool ok = status != -1 && WIFEXITED(status) && WEXITSTATUS(status) == 0;
-  if (!ok) {
-    const std::string why = status == -1 ? std::string("could not be started")
-                            : WIFEXITED(status) ? fmt::format("exited with status {}", WEXITSTATUS(status))
-                                                : std::string("was stopped by a signal");
+  const ChildResult r = run_child(gnuplot, {script}, folder);
+  if (!r.started || r.exit_code != 0) {
+    const std::string why = !r.started          ? std::string("could not be started")
+                            : r.exit_code >= 0 ? fmt::format("exited with status {}", r.exit_code)
+                                               : std::string("was stopped by a signal");
     throw std::runtime_error(fmt::format("gnuplot ({}) {} on {}{}{}", gnuplot.string(), why, script,
-                                         messages.empty() ? "" : ":\n", tail(messages, 12)));
+                                         r.output.empty() ? "" : ":\n", tail(r.output, 12)));
   }
+  std::error_code ec;
   if (!fs::exists(folder / image, ec) || fs::file_size(folder / image, ec) == 0)
     throw std::runtime_error(fmt::format("gnuplot ({}) made no image from {}{}{}", gnuplot.string(), script,
-                                         messages.empty() ? "" : ":\n", tail(messages, 12)));
+                                         r.output.empty() ? "" : ":\n", tail(r.output, 12)));
 }
 
 // ---- the page ------------------------------------------------------------------------------------
@@ -401,17 +368,6 @@ std::vector<std::pair<std::string, std::string>> settings_rows(const ScenarioSet
   return r;
 }
 
-// A cell of a Markdown table: '|' escaped, line breaks flattened.
-std::string md_cell(std::string_view s) {
-  std::string out;
-  for (char c : s) {
-    if (c == '|') out += "\\|";
-    else if (c == '\n' || c == '\r') out += ' ';
-    else out += c;
-  }
-  return out;
-}
-
 // format_answer_md's tables, nested under the report's "## Answer": its title line and its caution
 // (the report has its own) are left out and every heading goes one level down.
 std::string answer_section(const std::string& answer_md) {
@@ -432,8 +388,15 @@ std::string answer_section(const std::string& answer_md) {
   return out;
 }
 
+// "Scenario 1: logging.privilege=0.9": as is (for the .dat comments, which flatten it), for the
+// terminal, and for the page (the label is user text: printable_line / markdown_text).
 std::string scenario_heading(const Scenario& sc) {
   return sc.label.empty() ? fmt::format("Scenario {}", sc.index) : fmt::format("Scenario {}: {}", sc.index, sc.label);
+}
+std::string scenario_heading_terminal(const Scenario& sc) { return printable_line(scenario_heading(sc)); }
+std::string scenario_heading_md(const Scenario& sc) {
+  return sc.label.empty() ? fmt::format("Scenario {}", sc.index)
+                          : fmt::format("Scenario {}: {}", sc.index, markdown_text(sc.label));
 }
 
 struct TempFolder {
@@ -460,7 +423,7 @@ bool drawable(const std::vector<Series<Cell>>& series, const std::vector<Role>& 
 // ---- public pieces -------------------------------------------------------------------------------
 
 std::string summary_dat(const std::vector<CellSummary>& cells, std::string_view title) {
-  std::string s = comment_lines(title);
+  std::string s = title_comment(title);
   s += "# One block per strategy and logged budget (gnuplot: index 0, 1, ...), separated by two blank lines.\n"
        "# Statistics over (environment draw, replicate) pairs, as summarise() computes them (src/core/summary.hpp):\n"
        "# count = pairs with a value, sd = sample standard deviation, quantiles of type 7 (Hyndman and Fan).\n"
@@ -474,7 +437,7 @@ std::string summary_dat(const std::vector<CellSummary>& cells, std::string_view 
 }
 
 std::string success_dat(const std::vector<SuccessCell>& cells, std::string_view title) {
-  std::string s = comment_lines(title);
+  std::string s = title_comment(title);
   s += "# One block per strategy and logged budget (gnuplot: index 0, 1, ...), separated by two blank lines.\n"
        "# Raw success fraction (src/core/success_curve.hpp): of the pairs with a value, those at most the target;\n"
        "# the answer makes it non-decreasing in the budget before interpolating. NaN: no pair has a value.\n"
@@ -484,15 +447,6 @@ std::string success_dat(const std::vector<SuccessCell>& cells, std::string_view 
                        dat_number(c.fraction));
   });
   return s;
-}
-
-std::string shell_quote(std::string_view text) {
-  std::string out = "'";
-  for (char c : text) {
-    if (c == '\'') out += "'\\''";
-    else out += c;
-  }
-  return out + "'";
 }
 
 std::optional<fs::path> find_program(const std::string& program) {
@@ -519,17 +473,10 @@ std::optional<fs::path> find_program(const std::string& program) {
 }
 
 std::vector<std::string> gnuplot_terminals(const fs::path& gnuplot) {
-  const std::string command =
-      shell_quote(gnuplot.string()) + " -e " + shell_quote("set print '-'; print GPVAL_TERMINALS") + " 2>/dev/null";
   std::vector<std::string> out;
-  std::FILE* p = ::popen(command.c_str(), "r");
-  if (p == nullptr) return out;
-  std::string text;
-  char buffer[4096];
-  std::size_t n = 0;
-  while ((n = std::fread(buffer, 1, sizeof buffer, p)) > 0) text.append(buffer, n);
-  ::pclose(p);
-  std::istringstream in(text);
+  const ChildResult r = run_child(gnuplot, {"-e", "set print '-'; print GPVAL_TERMINALS"}, fs::current_path());
+  if (!r.started || r.exit_code != 0) return out;
+  std::istringstream in(r.output);
   std::string word;
   while (in >> word) out.push_back(word);
   return out;
@@ -579,8 +526,9 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
     terminal = "pngcairo";
   }
 
-  const Study study = load_study(run_dir / "study.resolved.yaml");
-  const std::vector<RunRecord> rows = read_runs(run_dir / "runs.csv");
+  const FinishedRun run = load_finished_run(run_dir);  // study hash and every row checked (finished_run.hpp)
+  const Study& study = run.study;
+  const std::vector<RunRecord>& rows = run.rows;
   const std::vector<AnswerRow> answers = compute_study_answers(study, rows, options.overrides);
   std::vector<std::string> labels;
   for (const auto& sc : study.scenarios) labels.push_back(sc.label);
@@ -605,7 +553,7 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
     const auto& set = sc.settings;
     const int pairs = set.environment.draws * set.replicates;
     const double assurance = options.overrides.assurance.value_or(set.assurance);
-    figures_md += "\n### " + scenario_heading(sc) + "\n";
+    figures_md += "\n### " + scenario_heading_md(sc) + "\n";
     for (Measure m : set.measures) {
       std::optional<double> target;
       if (auto t = options.overrides.targets.find(m); t != options.overrides.targets.end()) target = t->second;
@@ -614,13 +562,14 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
       std::vector<CellSummary> cells;
       for (const auto& c : summaries[m])
         if (c.scenario == sc.index) cells.push_back(c);
+      // The second title line holds user text: gnuplot_lines() quotes it (never between double quotes).
       const std::string title_line2 = sc.label.empty() ? fmt::format("study {}", study.name)
                                                        : fmt::format("study {}, scenario {}: {}", study.name, sc.index, sc.label);
       figures_md += fmt::format("\n#### `{}`\n", name(m));
 
       // The measure against pilot episodes.
       FigureText f{fmt::format("scenario-{}-{}", sc.index, name(m)),
-                   fmt::format("{} against pilot episodes\n{}", name(m), title_line2)};
+                   {fmt::format("{} against pilot episodes", name(m)), title_line2}};
       const auto series = group_series(cells);
       const auto role = roles(series);
       const bool log_y = m == Measure::model_kl;
@@ -641,7 +590,7 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
       }
       const bool any_dashed = std::find(role.begin(), role.end(), Role::other) != role.end();
       if (!can_draw) {
-        const std::string why = fmt::format("{}, `{}`: no {}value to draw", scenario_heading(sc), name(m),
+        const std::string why = fmt::format("{}, `{}`: no {}value to draw", scenario_heading_terminal(sc), name(m),
                                             log_y ? "positive finite " : "finite ");
         outcome.skipped.push_back(why);
         figures_md += fmt::format("\nNo figure for `{}`: no pair has a {}value of it in this scenario (data: [{}.dat]({}.dat)).\n",
@@ -652,7 +601,7 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
                               measure_script(f, terminal, image, m, target, series, role));
         if (options.render) run_gnuplot(*gnuplot, tmp.path, f.base + ".gp", image);
         outcome.figures.push_back({sc.index, m, false, image, f.base + ".gp", f.base + ".dat", options.render});
-        figures_md += fmt::format("\n![{} against pilot episodes, {}]({})\n\n", name(m), scenario_heading(sc), image);
+        figures_md += fmt::format("\n![{} against pilot episodes, {}]({})\n\n", name(m), scenario_heading_md(sc), image);
         figures_md += fmt::format(
             "`{}` against pilot episodes: median over the {} (environment draw, replicate) pairs at each simulated "
             "budget (line), 10% to 90% of the pairs (shaded band){}{}. Solid lines: pilot-only{}{}.{} "
@@ -665,14 +614,15 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
 
       // The success fraction against pilot episodes.
       if (!target) {
-        outcome.skipped.push_back(fmt::format("{}, `{}` success fraction: no target", scenario_heading(sc), name(m)));
+        outcome.skipped.push_back(
+            fmt::format("{}, `{}` success fraction: no target", scenario_heading_terminal(sc), name(m)));
         figures_md += fmt::format("\nNo success-fraction figure for `{}`: the study sets no target for it.\n", name(m));
         continue;
       }
       const auto success = success_curve(rows, sc.index, m, *target);
       FigureText g{fmt::format("scenario-{}-{}-success", sc.index, name(m)),
-                   fmt::format("fraction of pairs with {} <= {} against pilot episodes\n{}", name(m),
-                               text_number(*target), title_line2)};
+                   {fmt::format("fraction of pairs with {} <= {} against pilot episodes", name(m), text_number(*target)),
+                    title_line2}};
       const auto sseries = group_series(success);
       const auto srole = roles(sseries);
       write_file_atomically(tmp.path / (g.base + ".dat"),
@@ -681,7 +631,8 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
                                                              name(m), text_number(*target), study.name,
                                                              scenario_heading(sc))));
       if (!drawable(sseries, srole, [](const SuccessCell& c) { return std::isfinite(c.fraction); })) {
-        outcome.skipped.push_back(fmt::format("{}, `{}` success fraction: no value", scenario_heading(sc), name(m)));
+        outcome.skipped.push_back(
+            fmt::format("{}, `{}` success fraction: no value", scenario_heading_terminal(sc), name(m)));
         figures_md += fmt::format("\nNo success-fraction figure for `{}`: no pair has a value of it in this scenario.\n",
                                   name(m));
         continue;
@@ -692,7 +643,7 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
       if (options.render) run_gnuplot(*gnuplot, tmp.path, g.base + ".gp", image);
       outcome.figures.push_back({sc.index, m, true, image, g.base + ".gp", g.base + ".dat", options.render});
       figures_md += fmt::format("\n![fraction of pairs meeting the {} target, {}]({})\n\n", name(m),
-                                scenario_heading(sc), image);
+                                scenario_heading_md(sc), image);
       figures_md += fmt::format(
           "Fraction of the pairs with `{}` at most {} at each simulated budget, as simulated (the answer makes it "
           "non-decreasing in the budget, then interpolates in log(budget) where it reaches the assurance); dotted "
@@ -701,21 +652,22 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
     }
   }
 
-  // ---- report.md
+  // ---- report.md. User text (the study name, the run directory's name, swept keys and values,
+  // labels) goes in through markdown_text / markdown_cell only, never inside a code span.
   const ScenarioSettings& first = study.scenarios.front().settings;
-  std::string md = fmt::format("# Report: {}\n\n", study.name);
+  std::string md = fmt::format("# Report: {}\n\n", markdown_text(study.name));
   fs::path shown = fs::absolute(run_dir).lexically_normal();
   if (shown.filename().empty()) shown = shown.parent_path();
   md += fmt::format(
-      "Made by `dobudget report` (dobudget {}) from the run directory `{}` ({} run records), without simulating "
+      "Made by `dobudget report` (dobudget {}) from the run directory {} ({} run records), without simulating "
       "again. {}\n",
-      DOBUDGET_VERSION, shown.filename().string(), rows.size(),
+      DOBUDGET_VERSION, markdown_text(shown.filename().string()), rows.size(),
       options.overrides.targets.empty() && !options.overrides.assurance
           ? "Figures and tables use the study's targets and assurance."
           : "Targets or the assurance were given for this report (see [Settings](#settings)).");
 
   md += "\n## Study\n\n";
-  md += fmt::format("Study `{}`, seed {}. ", study.name, study.seed);
+  md += fmt::format("Study {}, seed {}. ", markdown_text(study.name), study.seed);
   const auto& assignments0 = study.scenarios.front().assignments;
   if (study.scenarios.size() == 1 && assignments0.empty()) {
     md += "One scenario (no sweep).\n";
@@ -723,12 +675,12 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
     std::vector<std::string> keys;
     for (const auto& [k, v] : assignments0) keys.push_back(k);
     md += fmt::format("{} scenarios, the cartesian product of the swept values of {}:\n\n", study.scenarios.size(),
-                      join_map(keys, ", ", [](const std::string& k) { return "`" + k + "`"; }));
-    md += "| scenario |" + join_map(keys, "", [](const std::string& k) { return " " + md_cell(k) + " |"; }) + "\n";
+                      join_map(keys, ", ", [](const std::string& k) { return markdown_text(k); }));
+    md += "| scenario |" + join_map(keys, "", [](const std::string& k) { return " " + markdown_cell(k) + " |"; }) + "\n";
     md += "|---:|" + std::string() + join_map(keys, "", [](const std::string&) { return std::string("---|"); }) + "\n";
     for (const auto& sc : study.scenarios)
       md += fmt::format("| {} |", sc.index) +
-            join_map(sc.assignments, "", [](const std::pair<std::string, std::string>& a) { return " " + md_cell(a.second) + " |"; }) +
+            join_map(sc.assignments, "", [](const std::pair<std::string, std::string>& a) { return " " + markdown_cell(a.second) + " |"; }) +
             "\n";
   }
 
@@ -756,8 +708,9 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
     md += "| setting | value |\n|---|---|\n";
     for (const auto& [key, value] : settings_rows(first, targets, assurance)) {
       const bool swept = std::any_of(assignments0.begin(), assignments0.end(),
-                                     [&](const auto& a) { return a.first == key; });
-      md += fmt::format("| `{}` | {} |\n", md_cell(key), swept ? std::string("swept (see [Study](#study))") : md_cell(value));
+                                     [&k = key](const auto& a) { return a.first == k; });  // clang 14: no capture of a structured binding
+      // Keys and values here are the program's own text (setting names, numbers), not user text.
+      md += fmt::format("| `{}` | {} |\n", key, swept ? std::string("swept (see [Study](#study))") : value);
     }
   }
 

@@ -31,7 +31,14 @@
 // The .gp scripts use paths relative to report/: `cd DIR/report && gnuplot scenario-0-model_kl.gp`
 // redraws a figure after editing its script.
 //
-// gnuplot runs as a child process (one per figure, through /bin/sh with every path single-quoted).
+// User text (the study name, scenario labels, swept keys and values, the run directory's name) is
+// hostile: it reaches the scripts only as gnuplot single-quoted strings (gnuplot_string,
+// gnuplot_lines: a two-line title is 'line one'."\n".'line two', never user text inside double
+// quotes, where gnuplot would run `backquoted` commands), the .dat title comment only on one line
+// (printable_line), report.md only through markdown_text / markdown_cell, and the terminal only
+// through printable_line; see text_escape.hpp.
+//
+// gnuplot runs as a child process (one per figure), without a shell (child_process.hpp).
 // Terminal: pngcairo when the installed gnuplot has it, else png, else svg (images .png or .svg).
 // Everything is written to a temporary folder DIR/.report.tmp.<pid> and renamed to DIR/report at
 // the end (an older report/ is replaced only then), so a failed run leaves no half-written
@@ -91,13 +98,11 @@ ReportOutcome write_report(const std::filesystem::path& run_dir, const ReportOpt
 // ---- pieces, exposed for tests --------------------------------------------------------------
 
 // The text of a .dat file for the cells of one scenario and measure (as summarise() gives them).
-// `title` goes into the header comment.
+// `title` goes into the header comment, on one line (printable_line: a line break or control
+// character in it cannot end the comment).
 std::string summary_dat(const std::vector<CellSummary>& cells, std::string_view title);
 // The same for success fractions: columns strategy logged pilot pairs successes fraction.
 std::string success_dat(const std::vector<SuccessCell>& cells, std::string_view title);
-
-// 'text' quoted for /bin/sh: single quotes, each embedded ' written '\''.
-std::string shell_quote(std::string_view text);
 
 // The program as run: a name without '/' is searched on PATH; a path must be an executable file.
 std::optional<std::filesystem::path> find_program(const std::string& program);

@@ -12,6 +12,8 @@
 #include "core/runner.hpp"
 #include "core/seeding.hpp"
 #include "io/atomic_file.hpp"
+#include "io/expected_rows.hpp"
+#include "io/input_error.hpp"
 #include "io/journal.hpp"
 #include "io/runs_table.hpp"
 
@@ -26,6 +28,21 @@ std::vector<std::size_t> shard_units(std::size_t total, const Shard& shard) {
 
 std::string study_hash(const std::string& resolved) { return fmt::format("{:016x}", name_key(resolved)); }
 
+namespace {
+
+// True when `dir` holds nothing but an empty units.journal: what a `plan` leaves for an instant
+// between creating (and locking) the journal and writing study.resolved.yaml.
+bool holds_only_empty_journal(const std::filesystem::path& dir) {
+  std::error_code ec;
+  for (const auto& entry : std::filesystem::directory_iterator(dir, ec)) {
+    if (entry.path().filename() != "units.journal") return false;
+    if (std::filesystem::file_size(entry.path(), ec) != 0 || ec) return false;
+  }
+  return !ec;
+}
+
+}  // namespace
+
 void check_directory_claim(const std::filesystem::path& dir, const std::string& resolved) {
   const auto resolved_file = dir / "study.resolved.yaml";
   if (std::filesystem::exists(dir) && !std::filesystem::is_directory(dir))
@@ -39,7 +56,7 @@ void check_directory_claim(const std::filesystem::path& dir, const std::string& 
           dir.string(), study_hash(theirs), study_hash(resolved)));
     return;
   }
-  if (std::filesystem::exists(dir) && !std::filesystem::is_empty(dir))
+  if (std::filesystem::exists(dir) && !std::filesystem::is_empty(dir) && !holds_only_empty_journal(dir))
     throw std::runtime_error(dir.string() + " exists, is not empty and is not a dobudget run directory; choose another --out directory");
 }
 
@@ -67,11 +84,19 @@ void write_run_tables(const std::filesystem::path& dir, const std::vector<RunRec
 
 PlanOutcome plan_study(const Study& study, const std::string& resolved, const PlanOptions& opt) {
   const auto start = std::chrono::steady_clock::now();
-  claim_directory(opt.out, resolved);
   const std::vector<UnitId> units = enumerate_units(study);
   const std::vector<std::size_t> mine = shard_units(units.size(), opt.shard.value_or(Shard{}));
 
-  Journal journal(opt.out / "units.journal");
+  // The directory is claimed (checked, study.resolved.yaml written) while the journal's lock is
+  // held, so of two runs racing for one new directory exactly one claims it; the other finds the
+  // lock taken, or the directory claimed by a study that is not its own. Every record read back
+  // must hold its unit's rows.
+  if (std::filesystem::exists(opt.out) && !std::filesystem::is_directory(opt.out))
+    throw std::runtime_error(opt.out.string() + " exists and is not a directory; choose another --out directory");
+  std::filesystem::create_directories(opt.out);
+  Journal journal(
+      opt.out / "units.journal", study_hash(resolved), [&] { claim_directory(opt.out, resolved); },
+      [&](std::size_t index, const std::vector<RunRecord>& rows) { return unit_rows_problem(study, units, index, rows); });
   PlanOutcome out;
   out.units_total = mine.size();
   out.torn_record_dropped = journal.torn_tail_dropped();
@@ -101,7 +126,16 @@ PlanOutcome plan_study(const Study& study, const std::string& resolved, const Pl
       const auto& rows = journal.units().at(i);
       out.rows.insert(out.rows.end(), rows.begin(), rows.end());
     }
-    if (!opt.shard || opt.shard->count == 1) write_run_tables(opt.out, out.rows);
+    if (!opt.shard || opt.shard->count == 1) {
+      // Never a runs.csv that is not the study's full, consistent set of rows. Every record was
+      // checked against its unit, so a failure here is a bug, not the user's input.
+      try {
+        check_rows_against_study(study, out.rows, (opt.out / "runs.csv").string());
+      } catch (const InputError& e) {
+        throw std::logic_error(std::string("the rows about to be written are inconsistent: ") + e.what());
+      }
+      write_run_tables(opt.out, out.rows);
+    }
   }
   return out;
 }

@@ -61,8 +61,9 @@ struct PlanOutcome {
 std::string study_hash(const std::string& resolved_yaml);
 
 // Checks, writing nothing, that `dir` may hold a run directory of this study: it does not exist,
-// is an empty directory, or is a run directory whose study.resolved.yaml has exactly these bytes.
-// Throws std::runtime_error naming the directory (and both study hashes when the study differs).
+// is an empty directory (or holds only an empty units.journal: a `plan` claiming it this instant),
+// or is a run directory whose study.resolved.yaml has exactly these bytes. Throws
+// std::runtime_error naming the directory (and both study hashes when the study differs).
 void check_directory_claim(const std::filesystem::path& dir, const std::string& resolved_yaml);
 
 // check_directory_claim, then creates the directory and writes study.resolved.yaml if missing.
@@ -70,7 +71,12 @@ void claim_directory(const std::filesystem::path& dir, const std::string& resolv
 
 // Creates the directory (or checks that it belongs to this study), runs the missing units and,
 // when the study is complete (and not sharded), writes runs.csv and timings.csv.
-// Throws std::runtime_error for a directory that belongs to another study.
+// The claim is made while holding units.journal's lock (journal.hpp): of two runs racing for one
+// new directory exactly one claims it. Every journal record read back must hold its unit's rows
+// (expected_rows.hpp), and runs.csv is only ever the full, consistent set of the study's rows.
+// Throws std::runtime_error for a directory that belongs to another study or is being written by
+// another process, InputError (file, line) for a journal of another study or with a damaged or
+// foreign record.
 PlanOutcome plan_study(const Study& study, const std::string& resolved_yaml, const PlanOptions& options);
 
 // Writes runs.csv and timings.csv (atomically) for rows in canonical order.

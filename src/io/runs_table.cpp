@@ -2,16 +2,22 @@
 
 #include <fmt/format.h>
 
+#include <array>
 #include <charconv>
+#include <cmath>
 #include <limits>
-#include <sstream>
 #include <stdexcept>
 
 #include "io/atomic_file.hpp"
 #include "io/csv.hpp"
+#include "io/input_error.hpp"
 
 namespace dobudget::io {
 namespace {
+
+constexpr std::array<const char*, 12> runs_columns{"scenario", "environment", "replicate", "strategy",
+                                                   "logged",   "pilot",       "model_kl",  "return_gap",
+                                                   "loglik",   "iterations",  "converged", "note"};
 
 std::vector<std::string> split(const std::string& line) {
   std::vector<std::string> cells;
@@ -28,21 +34,60 @@ std::vector<std::string> split(const std::string& line) {
   return cells;
 }
 
-// Exact text to double (std::from_chars: no locale, and subnormals read back, unlike std::stod).
-double parse_double(const std::string& s) {
-  double x = 0.0;
-  if (s == "inf") return std::numeric_limits<double>::infinity();
-  if (s == "-inf") return -std::numeric_limits<double>::infinity();
-  if (s == "nan") return std::numeric_limits<double>::quiet_NaN();
-  const auto [end, ec] = std::from_chars(s.data(), s.data() + s.size(), x);
-  if (ec != std::errc() || end != s.data() + s.size()) throw std::runtime_error("malformed number '" + s + "'");
-  return x;
+// A cell as the user sees it in a message: quoted, at most 40 characters, control characters escaped.
+std::string shown(const std::string& s) {
+  std::string out;
+  for (char c : s.substr(0, 40)) {
+    const auto u = static_cast<unsigned char>(c);
+    out += u < 0x20 || u == 0x7f ? fmt::format("\\x{:02x}", u) : std::string(1, c);
+  }
+  return "'" + out + (s.size() > 40 ? "...'" : "'");
 }
 
-std::optional<double> parse_optional(const std::string& s) {
-  if (s.empty()) return std::nullopt;
-  return parse_double(s);
-}
+// Reads the cells of one line; every error names the source, the line and the column.
+class CellReader {
+ public:
+  CellReader(const std::vector<std::string>& cells, const std::string& source, int line)
+      : cells_(cells), source_(source), line_(line) {}
+
+  [[noreturn]] void fail(std::size_t column, const std::string& message) const {
+    throw InputError(source_, line_, runs_columns[column], message);
+  }
+
+  // A non-negative integer in decimal digits (no sign, no spaces).
+  int count(std::size_t column) const {
+    const std::string& s = cells_[column];
+    int x = 0;
+    const auto [end, ec] = std::from_chars(s.data(), s.data() + s.size(), x);
+    if (s.empty() || s[0] == '-' || ec != std::errc() || end != s.data() + s.size())
+      fail(column, "expected an integer of at least 0, got " + shown(s));
+    return x;
+  }
+
+  // Exact text to double (std::from_chars: no locale, and subnormals read back, unlike std::stod).
+  double number(std::size_t column) const {
+    const std::string& s = cells_[column];
+    double x = 0.0;
+    if (s == "inf") return std::numeric_limits<double>::infinity();
+    if (s == "-inf") return -std::numeric_limits<double>::infinity();
+    if (s == "nan") return std::numeric_limits<double>::quiet_NaN();
+    const auto [end, ec] = std::from_chars(s.data(), s.data() + s.size(), x);
+    if (s.empty() || ec != std::errc() || end != s.data() + s.size()) fail(column, "expected a number, got " + shown(s));
+    return x;
+  }
+
+  std::optional<double> optional_number(std::size_t column) const {
+    if (cells_[column].empty()) return std::nullopt;
+    return number(column);
+  }
+
+  const std::string& text(std::size_t column) const { return cells_[column]; }
+
+ private:
+  const std::vector<std::string>& cells_;
+  const std::string& source_;
+  int line_;
+};
 
 std::string keys(const RunRecord& r) {
   return fmt::format("{},{},{},{},{},{}", r.scenario, r.environment, r.replicate, name(r.strategy), r.logged, r.pilot);
@@ -55,28 +100,34 @@ std::string runs_line(const RunRecord& r) {
                      csv_number(r.loglik), r.iterations, r.converged ? 1 : 0, r.note);
 }
 
-RunRecord parse_runs_line(const std::string& line) {
+RunRecord parse_runs_line(const std::string& line, const std::string& source, int line_number) {
   const auto c = split(line);
-  if (c.size() != 12) throw std::runtime_error("expected 12 cells, found " + std::to_string(c.size()));
+  if (c.size() != runs_columns.size())
+    throw InputError(source, line_number, "",
+                     fmt::format("expected {} cells separated by commas, found {}", runs_columns.size(), c.size()));
+  const CellReader cells(c, source, line_number);
   RunRecord r;
-  try {
-    r.scenario = std::stoi(c[0]);
-    r.environment = std::stoi(c[1]);
-    r.replicate = std::stoi(c[2]);
-    const auto s = parse_strategy(c[3]);
-    if (!s) throw std::runtime_error("unknown strategy '" + c[3] + "'");
-    r.strategy = *s;
-    r.logged = std::stoi(c[4]);
-    r.pilot = std::stoi(c[5]);
-    r.model_kl = parse_optional(c[6]);
-    r.return_gap = parse_optional(c[7]);
-    r.loglik = parse_double(c[8]);
-    r.iterations = std::stoi(c[9]);
-    r.converged = c[10] == "1";
-    r.note = c[11];
-  } catch (const std::logic_error& e) {
-    throw std::runtime_error(std::string("malformed number: ") + e.what());
-  }
+  r.scenario = cells.count(0);
+  r.environment = cells.count(1);
+  r.replicate = cells.count(2);
+  const auto s = parse_strategy(c[3]);
+  if (!s) cells.fail(3, "unknown strategy " + shown(c[3]) + "; expected pilot-only, pooled or regime-aware");
+  r.strategy = *s;
+  r.logged = cells.count(4);
+  r.pilot = cells.count(5);
+  // model_kl is a KL divergence: >= 0 (Gibbs' inequality), +inf allowed, nan not.
+  r.model_kl = cells.optional_number(6);
+  if (r.model_kl && !(*r.model_kl >= 0.0)) cells.fail(6, "must be at least 0, got " + c[6]);
+  r.return_gap = cells.optional_number(7);
+  if (r.return_gap && !std::isfinite(*r.return_gap)) cells.fail(7, "must be a finite number or empty, got " + c[7]);
+  r.loglik = cells.number(8);
+  if (std::isnan(r.loglik)) cells.fail(8, "must be a number, got nan");
+  r.iterations = cells.count(9);
+  if (c[10] != "0" && c[10] != "1") cells.fail(10, "must be 0 or 1, got " + shown(c[10]));
+  r.converged = c[10] == "1";
+  for (char ch : c[11])
+    if (static_cast<unsigned char>(ch) < 0x20 || ch == 0x7f) cells.fail(11, "holds a control character: " + shown(c[11]));
+  r.note = c[11];
   return r;
 }
 
@@ -92,33 +143,81 @@ std::string timings_csv(const std::vector<RunRecord>& rows) {
   return out;
 }
 
-std::vector<RunRecord> read_runs(const std::filesystem::path& file) {
-  std::istringstream in(read_file(file));
-  std::string line;
-  std::getline(in, line);
-  if (line != runs_header) throw std::runtime_error(file.string() + ":1: not a dobudget runs.csv header");
-  std::vector<RunRecord> rows;
-  int n = 1;
-  while (std::getline(in, line)) {
-    ++n;
-    if (line.empty()) continue;
-    try {
-      rows.push_back(parse_runs_line(line));
-    } catch (const std::exception& e) {
-      throw std::runtime_error(fmt::format("{}:{}: {}", file.string(), n, e.what()));
-    }
+namespace {
+
+// The lines of a CSV text: split at LF; a final LF ends the last line (it does not start an empty one).
+std::vector<std::string> lines_of(const std::string& text) {
+  std::vector<std::string> lines;
+  std::size_t pos = 0;
+  while (pos < text.size()) {
+    std::size_t nl = text.find('\n', pos);
+    if (nl == std::string::npos) nl = text.size();
+    lines.push_back(text.substr(pos, nl - pos));
+    pos = nl + 1;
   }
-  const auto timings = file.parent_path() / "timings.csv";
-  if (std::filesystem::exists(timings)) {
-    std::istringstream tin(read_file(timings));
-    std::getline(tin, line);
-    for (auto& r : rows) {
-      if (!std::getline(tin, line)) break;
-      const auto c = split(line);
-      if (c.size() == 7) r.fit_seconds = parse_double(c[6]);
-    }
+  return lines;
+}
+
+}  // namespace
+
+std::vector<RunRecord> parse_runs(const std::string& text, const std::string& source) {
+  const std::vector<std::string> lines = lines_of(text);
+  if (lines.empty()) throw InputError(source, 0, "", "is empty; expected the runs.csv header and one row per fit");
+  if (lines[0] != runs_header)
+    throw InputError(source, 1, "", fmt::format("not a dobudget runs.csv header (expected '{}')", runs_header));
+  std::vector<RunRecord> rows;
+  rows.reserve(lines.size() - 1);
+  for (std::size_t i = 1; i < lines.size(); ++i) {
+    const int n = static_cast<int>(i + 1);
+    if (lines[i].empty()) throw InputError(source, n, "", "empty line; runs.csv has one row per line and no gaps");
+    rows.push_back(parse_runs_line(lines[i], source, n));
   }
   return rows;
+}
+
+std::vector<RunRecord> read_runs(const std::filesystem::path& file) {
+  std::string text;
+  try {
+    text = read_file(file);
+  } catch (const std::runtime_error&) {
+    throw InputError(file.string(), 0, "", "cannot be read");
+  }
+  std::vector<RunRecord> rows = parse_runs(text, file.string());
+  const auto timings = file.parent_path() / "timings.csv";
+  if (std::filesystem::exists(timings)) read_fit_seconds(timings, rows);
+  return rows;
+}
+
+void read_fit_seconds(const std::filesystem::path& timings, std::vector<RunRecord>& rows) {
+  // Informative only (wall-clock seconds), but read as carefully: same keys, same order.
+  const std::string source = timings.string();
+  std::string text;
+  try {
+    text = read_file(timings);
+  } catch (const std::runtime_error&) {
+    throw InputError(source, 0, "", "cannot be read");
+  }
+  const std::vector<std::string> lines = lines_of(text);
+  if (lines.empty() || lines[0] != timings_header)
+    throw InputError(source, 1, "", fmt::format("not a dobudget timings.csv header (expected '{}')", timings_header));
+  if (lines.size() != rows.size() + 1)
+    throw InputError(source, 0, "",
+                     fmt::format("has {} rows, runs.csv beside it {}; delete timings.csv or run again",
+                                 lines.size() - 1, rows.size()));
+  for (std::size_t i = 0; i < rows.size(); ++i) {
+    const int n = static_cast<int>(i + 2);
+    const std::string& line = lines[i + 1];
+    const std::size_t comma = line.rfind(',');
+    if (comma == std::string::npos || line.substr(0, comma) != keys(rows[i]))
+      throw InputError(source, n, "",
+                       "keys differ from line " + std::to_string(n) + " of runs.csv (" + keys(rows[i]) + ")");
+    const std::string cell = line.substr(comma + 1);
+    double x = 0.0;
+    const auto [end, ec] = std::from_chars(cell.data(), cell.data() + cell.size(), x);
+    if (cell.empty() || ec != std::errc() || end != cell.data() + cell.size() || !(x >= 0.0) || !std::isfinite(x))
+      throw InputError(source, n, "fit_seconds", "expected a finite number of at least 0, got " + shown(cell));
+    rows[i].fit_seconds = x;
+  }
 }
 
 }  // namespace dobudget::io

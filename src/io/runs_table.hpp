@@ -3,6 +3,14 @@
 // written in the shortest form that reads back to the same double. timings.csv holds the same
 // keys with fit_seconds. The design's columns come first; `note` is appended (why a measure is
 // empty, e.g. "no room for planning").
+//
+// Reading treats the text as hostile: every cell is checked for its type and range, and a bad cell
+// is an InputError naming the file, the line and the column:
+//   runs.csv:14: model_kl: must be at least 0, got -0.3
+// Ranges: scenario, environment, replicate, logged, pilot and iterations are integers >= 0;
+// strategy is a known strategy; model_kl is empty or a number >= 0; return_gap is empty or finite;
+// loglik is a number (not nan); converged is 0 or 1; note holds no control character.
+// Whether the rows are the ones a study expects is checked by finished_run.hpp.
 #pragma once
 #include <filesystem>
 #include <string>
@@ -19,12 +27,22 @@ inline constexpr const char* timings_header = "scenario,environment,replicate,st
 std::string runs_csv(const std::vector<RunRecord>& rows);
 std::string timings_csv(const std::vector<RunRecord>& rows);
 
-// One runs.csv line (no newline) and its inverse; parse_runs_line throws std::runtime_error on a
-// malformed line. fit_seconds is not part of runs.csv.
+// One runs.csv line (no newline) and its inverse. parse_runs_line throws InputError(source, line,
+// column, message) on a malformed line or a value out of range (see above). fit_seconds is not
+// part of runs.csv.
 std::string runs_line(const RunRecord& r);
-RunRecord parse_runs_line(const std::string& line);
+RunRecord parse_runs_line(const std::string& line, const std::string& source = "runs.csv", int line_number = 0);
 
-// Reads runs.csv (and fit_seconds from timings.csv beside it when present).
+// The whole text of a runs.csv: the header, then one row per line (a final LF is optional; no empty
+// line inside). Throws only InputError (naming `source`, the 1-based line and the column).
+std::vector<RunRecord> parse_runs(const std::string& text, const std::string& source);
+
+// Reads runs.csv (parse_runs) and fit_seconds from timings.csv beside it when present
+// (read_fit_seconds).
 std::vector<RunRecord> read_runs(const std::filesystem::path& runs_csv_file);
+
+// Sets fit_seconds of `rows` from a timings.csv: its rows must have the keys of `rows`, in the same
+// order, and fit_seconds finite and >= 0; else an InputError naming the file and the line.
+void read_fit_seconds(const std::filesystem::path& timings_csv_file, std::vector<RunRecord>& rows);
 
 }  // namespace dobudget::io

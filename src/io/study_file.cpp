@@ -132,6 +132,41 @@ const Range open_unit{"in (0, 1)", [](double x) { return x > 0.0 && x < 1.0; }};
 
 std::string number_text(double x) { return fmt::format("{}", x); }
 
+// ---- Limits -------------------------------------------------------------------------------------
+// The largest values the computation can hold. Each is refused (InputError naming the key) while
+// the study is read, before any scenario is built or anything sized by it is allocated; what a
+// study within them needs in memory and time is estimated separately (memory_estimate.hpp,
+// cost_estimate.hpp) and refused by `check` and `plan` when the machine cannot hold it.
+//  * sizes (environment.states/actions/observations, fit.latent_states): max_model_size
+//    (model_file.hpp: forward-backward tables of A x O x Z^2 entries indexed in int).
+//  * environment.horizon: 10^4. The exact plan evaluation recurses once per stage (10^4 frames of
+//    about 100 bytes, far inside a thread's 8 MiB stack) and H x max |reward| stays finite
+//    (model_file.hpp: max_abs_reward).
+//  * budgets: 10^7 episodes each, so pilot + logged (2 x 10^7) fits an int, as do episode counts
+//    and episode indices x (H + 1) in 64-bit offsets.
+//  * draws, replicates: 10^5 each; units (scenarios x draws x replicates): 10^7, in 64-bit
+//    arithmetic (the journal, runs.csv and the answer hold every unit's rows).
+//  * sweep: at most 10^4 scenarios, the product of the value counts checked without overflow
+//    before any scenario is built (16 keys of 16 values would wrap a 64-bit count to 0).
+//  * fit.restarts 10^3, fit.max_iterations 10^6; evaluation.trajectories and planner.rollouts
+//    10^7; planner.belief_points 10^4 (a backup holds points x points doubles: 800 MB at 10^4);
+//    planner.exact_histories 10^9.
+//  * fit.prior: at most 1e100, so that a row of pseudo-counts (Z x prior) and the objective's
+//    prior x sum log q stay finite.
+constexpr int max_horizon = 10000;
+constexpr int max_budget = 10000000;
+constexpr int max_draws = 100000;
+constexpr int max_replicates = 100000;
+constexpr long long max_units = 10000000;
+constexpr std::size_t max_scenarios = 10000;
+constexpr int max_restarts = 1000;
+constexpr int max_iterations_cap = 1000000;
+constexpr int max_trajectories = 10000000;
+constexpr int max_rollouts = 10000000;
+constexpr int max_belief_points = 10000;
+constexpr int max_exact_histories = 1000000000;
+const Range prior_range{"in [0, 1e100]", [](double x) { return x >= 0.0 && x <= 1e100; }};
+
 // ---- Reading ------------------------------------------------------------------------------------
 
 // The checked entries of one mapping of the study ("" for the top level); absent sections are
@@ -155,20 +190,34 @@ class StudyParser {
 
   Study parse(const YAML::Node& node) {
     const Located root{node, "", input::line_of(node)};
-    if (node.IsDefined() && !node.IsNull() && !node.IsMap())
+    // An empty file (or one holding only comments or '---') is refused rather than read as the
+    // example study: it is far more likely a truncated or wrong file than a request for defaults.
+    if (!node.IsDefined() || node.IsNull())
+      in_.fail(root, "holds no study (the file is empty, or holds only comments); write at least `name: ...` "
+                     "(every other key has a default, shown by `dobudget check`)");
+    if (!node.IsMap())
       in_.fail(root, "expected a study: a mapping of 'key: value' entries, got " + input::describe(node));
     const Section top{"", in_.entries(root, top_keys)};
 
     Study study;
     if (const Located* v = top.find("name")) {
       study.name = in_.text(*v);
-      if (study.name.empty()) in_.fail(*v, "must not be empty");
+      check_name(*v, study.name);
     }
     if (const Located* v = top.find("seed")) study.seed = in_.unsigned_whole(*v);
 
     const std::vector<SweepAxis> axes = sweep(top);
+    // The number of scenarios, checked before any is built and without overflow.
     std::size_t total = 1;
-    for (const SweepAxis& a : axes) total *= a.values.size();
+    for (const SweepAxis& a : axes) {
+      if (a.values.size() > max_scenarios / total)
+        in_.fail(*top.find("sweep"),
+                 fmt::format("makes more than {} scenarios (the product of the numbers of values passes it at {}: "
+                             "{} x {}); split the study",
+                             max_scenarios, a.path, total, a.values.size()));
+      total *= a.values.size();
+    }
+    long long units = 0;  // scenarios x draws x replicates so far, at most max_units (64-bit)
     std::vector<std::size_t> digit(axes.size(), 0);
     for (std::size_t index = 0; index < total; ++index) {
       Scenario scenario;
@@ -180,6 +229,15 @@ class StudyParser {
         scenario.label += (k ? ", " : "") + axes[k].path + "=" + axes[k].canonical[digit[k]];
       }
       scenario.settings = settings(top);
+      const EnvironmentSettings& env = scenario.settings.environment;
+      units += static_cast<long long>(env.given ? 1 : env.draws) * scenario.settings.replicates;
+      if (units > max_units) {
+        const std::optional<Located> at = get(top, "replicates");
+        in_.fail(at ? at->line : root.line, at ? at->key : "replicates",
+                 fmt::format("makes more than {} units (scenarios x environment.draws x replicates{}); split the "
+                             "study or use fewer draws or replicates",
+                             max_units, total > 1 ? fmt::format(", {} scenarios", total) : ""));
+      }
       study.scenarios.push_back(std::move(scenario));
       for (std::size_t k = axes.size(); k-- > 0;) {  // the last key varies fastest
         if (++digit[k] < axes[k].values.size()) break;
@@ -190,6 +248,36 @@ class StudyParser {
   }
 
  private:
+  // A study name is text for people: pages, figure titles and tables show it (escaped for each),
+  // and the default run directory is derived from it (file_name.hpp). It must be non-empty, at most
+  // max_name_bytes long, valid UTF-8 and free of control characters (line breaks, tabs, escapes).
+  void check_name(const Located& v, const std::string& name) const {
+    constexpr std::size_t max_name_bytes = 200;
+    if (name.empty()) in_.fail(v, "must not be empty");
+    if (name.size() > max_name_bytes)
+      in_.fail(v, fmt::format("must be at most {} bytes long, got {}", max_name_bytes, name.size()));
+    for (std::size_t i = 0; i < name.size();) {
+      const auto c = static_cast<unsigned char>(name[i]);
+      if (c < 0x20 || c == 0x7f)
+        in_.fail(v, fmt::format("must not hold control characters (line breaks, tabs, escapes); found byte 0x{:02x} "
+                                "at position {}",
+                                c, i + 1));
+      // UTF-8 (RFC 3629, sec. 3): the lead byte gives the length; continuation bytes are 10xxxxxx;
+      // no overlong forms, no surrogates, nothing above U+10FFFF.
+      const std::size_t n = c < 0x80 ? 1 : (c >= 0xc2 && c <= 0xdf) ? 2 : (c >= 0xe0 && c <= 0xef) ? 3
+                                        : (c >= 0xf0 && c <= 0xf4)   ? 4 : 0;
+      bool ok = n > 0 && i + n <= name.size();
+      for (std::size_t k = 1; ok && k < n; ++k) ok = (static_cast<unsigned char>(name[i + k]) & 0xc0) == 0x80;
+      if (ok && n > 1) {
+        const auto c1 = static_cast<unsigned char>(name[i + 1]);
+        ok = !(c == 0xe0 && c1 < 0xa0) && !(c == 0xed && c1 >= 0xa0) && !(c == 0xf0 && c1 < 0x90) &&
+             !(c == 0xf4 && c1 >= 0x90);
+      }
+      if (!ok) in_.fail(v, fmt::format("must be UTF-8 text; the byte at position {} is not", i + 1));
+      i += n;
+    }
+  }
+
   Section section(const Section& top, std::string_view name, const std::vector<std::string>& keys) const {
     if (const Located* v = top.find(name)) return Section{v->key, in_.entries(*v, keys)};
     return Section{std::string(name), {}};
@@ -202,9 +290,12 @@ class StudyParser {
     return std::nullopt;
   }
 
-  int whole(const Section& s, std::string_view name, int fallback, int min) const {
+  int whole(const Section& s, std::string_view name, int fallback, int min, int max) const {
     const std::optional<Located> v = get(s, name);
-    return v ? in_.whole_int(*v, min) : fallback;
+    if (!v) return fallback;
+    const int x = in_.whole_int(*v, min);
+    if (x > max) in_.fail(*v, fmt::format("must be at most {} (the largest the computation holds), got {}", max, x));
+    return x;
   }
 
   double number(const Section& s, std::string_view name, double fallback, const Range& range) const {
@@ -234,30 +325,30 @@ class StudyParser {
     uniform_policy(section(top, "pilot", pilot_keys));
 
     const Section budgets = section(top, "budgets", budget_keys);
-    s.logged_budgets = budget_list(budgets, "logged", s.logged_budgets, 0);
-    s.pilot_budgets = budget_list(budgets, "pilot", s.pilot_budgets, 1);
+    s.logged_budgets = budget_list(budgets, "logged", s.logged_budgets, 0, max_budget);
+    s.pilot_budgets = budget_list(budgets, "pilot", s.pilot_budgets, 1, max_budget);
 
-    s.replicates = whole(top, "replicates", s.replicates, 1);
+    s.replicates = whole(top, "replicates", s.replicates, 1, max_replicates);
     s.strategies = name_list(top, "strategies", "strategy", s.strategies, strategy_names(), parse_strategy);
     s.measures = name_list(top, "measures", "measure", s.measures, measure_names(), parse_measure);
 
     const Section fit = section(top, "fit", fit_keys);
     const int states = s.environment.given ? s.environment.given->model.states : s.environment.family.states;
-    s.fit.latent_states = whole(fit, "latent_states", states, 1);
-    s.fit.restarts = whole(fit, "restarts", s.fit.restarts, 1);
-    s.fit.max_iterations = whole(fit, "max_iterations", s.fit.max_iterations, 1);
+    s.fit.latent_states = whole(fit, "latent_states", states, 1, max_model_size);
+    s.fit.restarts = whole(fit, "restarts", s.fit.restarts, 1, max_restarts);
+    s.fit.max_iterations = whole(fit, "max_iterations", s.fit.max_iterations, 1, max_iterations_cap);
     s.fit.tolerance = number(fit, "tolerance", s.fit.tolerance, positive);
-    s.fit.prior = number(fit, "prior", s.fit.prior, non_negative);
+    s.fit.prior = number(fit, "prior", s.fit.prior, prior_range);
 
     const Section evaluation = section(top, "evaluation", evaluation_keys);
-    s.evaluation.trajectories = whole(evaluation, "trajectories", s.evaluation.trajectories, 1);
+    s.evaluation.trajectories = whole(evaluation, "trajectories", s.evaluation.trajectories, 1, max_trajectories);
     uniform_policy(evaluation);
 
     const Section planner = section(top, "planner", planner_keys);
-    s.planner.belief_points = whole(planner, "belief_points", s.planner.belief_points, 1);
+    s.planner.belief_points = whole(planner, "belief_points", s.planner.belief_points, 1, max_belief_points);
     if (const std::optional<Located> v = get(planner, "seed")) s.planner.seed = in_.unsigned_whole(*v);
-    s.planner.exact_histories = whole(planner, "exact_histories", s.planner.exact_histories, 0);
-    s.planner.rollouts = whole(planner, "rollouts", s.planner.rollouts, 1);
+    s.planner.exact_histories = whole(planner, "exact_histories", s.planner.exact_histories, 0, max_exact_histories);
+    s.planner.rollouts = whole(planner, "rollouts", s.planner.rollouts, 2, max_rollouts);
 
     s.targets = targets(top, s.measures);
     s.assurance = number(top, "assurance", s.assurance, open_unit);
@@ -267,18 +358,18 @@ class StudyParser {
   EnvironmentSettings environment(const Section& top) {
     const Section env = section(top, "environment", environment_keys);
     EnvironmentSettings e;
-    e.horizon = whole(env, "horizon", e.horizon, 1);
+    e.horizon = whole(env, "horizon", e.horizon, 1, max_horizon);
     e.discount = number(env, "discount", e.discount, discount_range);
     const std::optional<Located> file = get(env, "file");
     const std::optional<Located> model = get(env, "model");
     if (!file && !model) {
-      e.family.states = whole(env, "states", e.family.states, 1);
-      e.family.actions = whole(env, "actions", e.family.actions, 1);
-      e.family.observations = whole(env, "observations", e.family.observations, 1);
+      e.family.states = whole(env, "states", e.family.states, 1, max_model_size);
+      e.family.actions = whole(env, "actions", e.family.actions, 1, max_model_size);
+      e.family.observations = whole(env, "observations", e.family.observations, 1, max_model_size);
       e.family.dynamics_concentration =
           number(env, "dynamics_concentration", e.family.dynamics_concentration, positive);
       e.family.observation_noise = number(env, "observation_noise", e.family.observation_noise, unit_interval);
-      e.draws = whole(env, "draws", e.draws, 1);
+      e.draws = whole(env, "draws", e.draws, 1, max_draws);
       return e;
     }
     const char* given_by = file ? "environment.file" : "environment.model";
@@ -288,7 +379,7 @@ class StudyParser {
         in_.fail(*v, fmt::format("is a setting of the synthetic family and cannot be combined with {}: the model "
                                  "fixes the environment",
                                  given_by));
-    e.draws = whole(env, "draws", 1, 1);
+    e.draws = whole(env, "draws", 1, 1, max_draws);
     if (e.draws != 1)
       in_.fail(*get(env, "draws"),
                fmt::format("must be 1 with {}: a model is one environment, got {}", given_by, e.draws));
@@ -312,7 +403,8 @@ class StudyParser {
     return load_model(path, 1, 1.0);  // horizon and discount are the study's, set by the caller
   }
 
-  std::vector<int> budget_list(const Section& s, std::string_view name, std::vector<int> fallback, int min) const {
+  std::vector<int> budget_list(const Section& s, std::string_view name, std::vector<int> fallback, int min,
+                               int max) const {
     const std::optional<Located> v = get(s, name);
     if (!v) return fallback;
     const std::vector<Located> items = in_.items(*v);
@@ -320,6 +412,9 @@ class StudyParser {
     std::vector<int> out;
     for (const Located& item : items) {
       const int x = in_.whole_int(item, min);
+      if (x > max)
+        in_.fail(item, fmt::format("must be at most {} episodes (the largest budget the computation holds), got {}",
+                                   max, x));
       if (!out.empty() && x <= out.back())
         in_.fail(item, fmt::format("must be larger than the previous budget ({}): budgets are strictly increasing; "
                                    "got {}",
@@ -385,6 +480,11 @@ class StudyParser {
       SweepAxis axis{e.name, {}, {}};
       if (!e.value.node.IsSequence())
         in_.fail(e.value, "expected a non-empty list of values, got " + input::describe(e.value.node));
+      // Counted before the values are read: each is compared with those before it (quadratic time),
+      // and an axis of more than max_scenarios values makes too many scenarios anyway.
+      if (e.value.node.size() > max_scenarios)
+        in_.fail(e.value, fmt::format("lists {} values, more than the {} scenarios a study may have; split the study",
+                                      e.value.node.size(), max_scenarios));
       axis.values = in_.items(e.value);
       if (axis.values.empty()) in_.fail(e.value, "must list at least one value");
       for (std::size_t i = 0; i < axis.values.size(); ++i) {

@@ -1,9 +1,10 @@
 // The study file (design.md sec. 7): reading it into a Study with every default filled in and the
 // sweep expanded, and writing a resolved Study back as YAML.
 //
-// Keys and defaults (every key is optional; an empty file is the example study):
+// Keys and defaults (every key is optional, but a file must hold at least one: an empty file, or
+// one of only comments, is refused):
 //
-//   name: example                # non-empty text
+//   name: example                # non-empty text, at most 200 bytes, UTF-8, no control characters
 //   seed: 1                      # 0 .. 2^64-1
 //   environment:                 # the synthetic family ...
 //     states: 4                  #   >= 1 (also actions, observations, horizon, draws)
@@ -52,6 +53,11 @@
 // scenario, with an empty label.
 //
 // Whole numbers may also be written as number literals with an integral value ("1e3").
+// Upper limits (what the computation can hold; reasons in study_file.cpp): sizes and
+// fit.latent_states 200, horizon 10^4, budgets 10^7 episodes, draws and replicates 10^5, units
+// (scenarios x draws x replicates) 10^7, scenarios 10^4, fit.restarts 10^3, fit.max_iterations 10^6,
+// fit.prior 1e100, evaluation.trajectories and planner.rollouts 10^7 (rollouts at least 2),
+// planner.belief_points 10^4, planner.exact_histories 10^9; |reward| 1e100 (model_file.hpp).
 // Every problem is an InputError (input_error.hpp) with the file, line and key path.
 #pragma once
 #include <filesystem>

@@ -3,6 +3,7 @@
 #include <fmt/format.h>
 
 #include "core/summary.hpp"
+#include "io/text_escape.hpp"
 
 namespace dobudget::io {
 
@@ -12,7 +13,8 @@ std::string format_summary(const Study& study, const std::vector<RunRecord>& row
     std::vector<RunRecord> mine;
     for (const auto& r : rows)
       if (r.scenario == sc.index) mine.push_back(r);
-    if (study.scenarios.size() > 1) out += fmt::format("scenario {}: {}\n", sc.index, sc.label);
+    // The label is user text: printable_line keeps control characters off the terminal.
+    if (study.scenarios.size() > 1) out += fmt::format("scenario {}: {}\n", sc.index, printable_line(sc.label));
     for (Measure m : sc.settings.measures) {
       out += fmt::format("{} over {} environment draws x {} replicates (lower is better)\n", name(m),
                          sc.settings.environment.given ? 1 : sc.settings.environment.draws, sc.settings.replicates);

@@ -1,11 +1,14 @@
 #include "io/yaml_input.hpp"
 
+#include <yaml-cpp/eventhandler.h>
+
 #include <algorithm>
 #include <charconv>
 #include <cmath>
 #include <fstream>
 #include <iterator>
 #include <limits>
+#include <sstream>
 #include <system_error>
 
 namespace dobudget::io::input {
@@ -190,18 +193,81 @@ std::string read_file_text(const std::filesystem::path& file, std::string_view w
   std::string problem;
   if (!std::filesystem::exists(status)) problem = "no such file";
   else if (std::filesystem::is_directory(status)) problem = "is a directory";
+  else if (!std::filesystem::is_regular_file(status))
+    problem = "not a regular file (a device, pipe or socket cannot be read as one)";
   std::ifstream in;
   if (problem.empty()) {
     in.open(file, std::ios::binary);
     if (!in) problem = "cannot be opened for reading";
   }
   if (!problem.empty()) throw InputError(file.string(), 0, "", "cannot read the " + std::string(what) + ": " + problem);
-  return std::string(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());
+  // The size is checked before anything is allocated; a file that grows while it is read is cut
+  // at max_input_bytes + 1 bytes and refused the same way.
+  const auto too_large = [&] {
+    return InputError(file.string(), 0, "",
+                      "the " + std::string(what) + " is larger than " + std::to_string(max_input_bytes >> 20) +
+                          " MiB; no study or model file needs that much");
+  };
+  const std::uintmax_t size = std::filesystem::file_size(file, ec);
+  if (ec || size > max_input_bytes) {
+    if (ec) throw InputError(file.string(), 0, "", "cannot read the " + std::string(what) + ": " + ec.message());
+    throw too_large();
+  }
+  std::string text(static_cast<std::size_t>(size), '\0');
+  in.read(text.data(), static_cast<std::streamsize>(text.size()));
+  text.resize(static_cast<std::size_t>(in.gcount()));
+  if (in && in.peek() != std::char_traits<char>::eof()) {
+    for (char c = 0; text.size() <= max_input_bytes && in.get(c);) text += c;
+    if (text.size() > max_input_bytes) throw too_large();
+  }
+  return text;
 }
+
+namespace {
+
+// Where each document of a YAML stream starts, from yaml-cpp's event parser (no nodes are built).
+struct DocumentStarts : YAML::EventHandler {
+  std::vector<YAML::Mark> starts;
+  void OnDocumentStart(const YAML::Mark& mark) override { starts.push_back(mark); }
+  void OnDocumentEnd() override {}
+  void OnNull(const YAML::Mark&, YAML::anchor_t) override {}
+  void OnAlias(const YAML::Mark&, YAML::anchor_t) override {}
+  void OnScalar(const YAML::Mark&, const std::string&, YAML::anchor_t, const std::string&) override {}
+  void OnSequenceStart(const YAML::Mark&, const std::string&, YAML::anchor_t, YAML::EmitterStyle::value) override {}
+  void OnSequenceEnd() override {}
+  void OnMapStart(const YAML::Mark&, const std::string&, YAML::anchor_t, YAML::EmitterStyle::value) override {}
+  void OnMapEnd() override {}
+};
+
+// yaml-cpp 0.7 (Debian 12) stops consuming a stream at some malformed tokens (a ',' outside any
+// flow collection is one) and then hands out the same empty document forever: YAML::LoadAll loops,
+// allocating about 0.5 GB a second (found by tests/fuzz; yaml-cpp issue 1040, fixed upstream by
+// pull request 1319 in 2024). Each document must start past the one before; a document that starts
+// where the previous one started is refused here, before YAML::LoadAll is called.
+void check_documents_advance(const std::string& text, const std::string& file) {
+  std::istringstream stream(text);
+  YAML::Parser parser(stream);
+  DocumentStarts documents;
+  while (parser.HandleNextDocument(documents)) {
+    const std::size_t n = documents.starts.size();
+    if (n >= 2 && documents.starts[n - 1].pos <= documents.starts[n - 2].pos) {
+      const YAML::Mark& at = documents.starts[n - 1];
+      const auto c = at.pos >= 0 && static_cast<std::size_t>(at.pos) < text.size()
+                         ? static_cast<unsigned char>(text[static_cast<std::size_t>(at.pos)])
+                         : 0;
+      const std::string shown = c > 0x20 && c < 0x7f ? std::string("'") + static_cast<char>(c) + "'" : "text";
+      throw InputError(file, at.line >= 0 ? at.line + 1 : 0, "",
+                       "malformed YAML: unexpected " + shown + " where a value should start");
+    }
+  }
+}
+
+}  // namespace
 
 YAML::Node parse_yaml(const std::string& text, const std::string& file) {
   std::vector<YAML::Node> documents;
   try {
+    check_documents_advance(text, file);
     documents = YAML::LoadAll(text);
   } catch (const YAML::Exception& e) {
     throw InputError(file, e.mark.line >= 0 ? e.mark.line + 1 : 0, "", "malformed YAML: " + e.msg);

@@ -105,7 +105,12 @@ class Reader {
 
 // ---- Files -------------------------------------------------------------------------------------
 
-// The whole content of an input file; InputError (line 0) when it cannot be read.
+// The most bytes an input file may hold: 64 MiB, room for a model of a few hundred states written
+// out in full, and a bound on what a hostile file can make us read and parse.
+inline constexpr std::size_t max_input_bytes = std::size_t{64} << 20;
+
+// The whole content of an input file; InputError (line 0) when it cannot be read, is not a
+// regular file (a device such as /dev/zero, a pipe) or is larger than max_input_bytes.
 // `what` names the kind of file in the message, e.g. "study file".
 std::string read_file_text(const std::filesystem::path& file, std::string_view what);
 

@@ -19,17 +19,18 @@
 #include <thread>
 #include <utility>
 
+#include "core/stop.hpp"
 #include "io/journal.hpp"
 
 namespace dobudget::mpi {
 namespace {
 
-enum Tag : int { ready_tag = 1, assign_tag = 2, result_tag = 3, stop_tag = 4 };
+enum Tag : int { ready_tag = 1, assign_tag = 2, result_tag = 3, stop_tag = 4, cancelled_tag = 5, cancel_tag = 6 };
 
 // One DrawContext per (scenario, draw), built by whichever thread of this process needs it first.
 class DrawContextCache {
  public:
-  const DrawContext& get(const Study& study, const UnitId& u) {
+  const DrawContext& get(const Study& study, const UnitId& u, const StopToken& stop) {
     Slot* slot = nullptr;
     {
       std::lock_guard lock(mutex_);
@@ -37,7 +38,7 @@ class DrawContextCache {
       if (!p) p = std::make_unique<Slot>();
       slot = p.get();
     }
-    std::call_once(slot->once, [&] { slot->context = make_draw_context(study, u.scenario, u.draw); });
+    std::call_once(slot->once, [&] { slot->context = make_draw_context(study, u.scenario, u.draw, stop); });
     return slot->context;
   }
 
@@ -69,6 +70,13 @@ std::pair<std::size_t, std::vector<RunRecord>> decode_result(const std::string& 
     if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
       throw std::runtime_error(fmt::format("{}: the record of unit {} holds a row of another unit", source, index));
   return {index, std::move(rows)};
+}
+
+// Units assigned to a worker but not started when a stop comes are cut short at once: moved from
+// the queue to the list reported as CANCELLED.
+void queue_cancelled(std::deque<std::size_t>& queue, std::deque<unsigned long long>& cut) {
+  for (std::size_t index : queue) cut.push_back(index);
+  queue.clear();
 }
 
 using Clock = std::chrono::steady_clock;
@@ -163,11 +171,15 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
   std::mutex mutex;
   std::size_t next = 0;
   std::exception_ptr failure;
+  std::atomic<bool> worker_cancelled{false};  // a worker reported CANCELLED: stop as if signalled
+  const StopToken stop([&] {
+    return worker_cancelled.load() || (hooks.stop_requested && hooks.stop_requested());
+  });
   double unit_seconds = 0.0;  // summed over finished units (remote: from ASSIGN to RESULT)
   std::size_t units_timed = 0;
   auto take = [&]() -> std::optional<std::size_t> {
     std::lock_guard lock(mutex);
-    if (failure || next >= todo.size() || (hooks.stop_requested && hooks.stop_requested())) return std::nullopt;
+    if (failure || next >= todo.size() || stop.requested()) return std::nullopt;
     return todo[next++];
   };
   auto fail = [&](std::exception_ptr e) {
@@ -195,9 +207,11 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
       try {
         while (const auto i = take()) {
           const auto start = Clock::now();
-          auto rows = run_unit(study, units[*i], cache.get(study, units[*i]));
+          auto rows = run_unit(study, units[*i], cache.get(study, units[*i], stop), stop);
           deliver(0, *i, std::move(rows), seconds_since(start));
         }
+      } catch (const Cancelled&) {
+        // cut short by a stop: nothing delivered, and take() hands out nothing more
       } catch (...) {
         fail(std::current_exception());
       }
@@ -211,6 +225,7 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
   std::vector<Peer> peers(static_cast<std::size_t>(size_));
   std::map<std::size_t, std::pair<int, Clock::time_point>> assigned;  // remote units in flight: rank, ASSIGN time
   int stopped = 0;
+  bool cancel_sent = false;
   auto refill = [&](int rank) {
     Peer& p = peers[static_cast<std::size_t>(rank)];
     while (p.in_flight < p.slots) {
@@ -229,6 +244,12 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
   try {
     Backoff backoff;
     while (stopped < size_ - 1) {
+      if (!cancel_sent && stop.requested()) {  // cut the workers' units short too
+        cancel_sent = true;
+        for (int r = 1; r < size_; ++r)
+          if (peers[static_cast<std::size_t>(r)].in_flight > 0)
+            MPI_Send(nullptr, 0, MPI_BYTE, r, cancel_tag, MPI_COMM_WORLD);
+      }
       int flag = 0;
       MPI_Status status;
       MPI_Iprobe(MPI_ANY_SOURCE, MPI_ANY_TAG, MPI_COMM_WORLD, &flag, &status);
@@ -265,6 +286,15 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         } catch (...) {
           fail(std::current_exception());
         }
+      } else if (status.MPI_TAG == cancelled_tag) {
+        unsigned long long index = 0;
+        MPI_Recv(&index, 1, MPI_UNSIGNED_LONG_LONG, rank, cancelled_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+        const auto sent = assigned.find(static_cast<std::size_t>(index));
+        if (sent == assigned.end() || sent->second.first != rank)
+          throw std::runtime_error(fmt::format("rank {} cancelled unit {}, which it was not assigned", rank, index));
+        assigned.erase(sent);
+        --p.in_flight;
+        worker_cancelled = true;  // not recorded; no unit is handed out any more
       } else {
         throw std::runtime_error(fmt::format("unexpected MPI message (tag {}) from rank {}", status.MPI_TAG, rank));
       }
@@ -281,7 +311,7 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
 // ---------------------------------------------------------------------------------------------
 // Ranks 1..P-1
 
-void serve_as_worker(const Study& study, int threads) {
+void serve_as_worker(const Study& study, int threads, std::function<bool()> stop_requested) {
   int rank = 0;
   MPI_Comm_rank(MPI_COMM_WORLD, &rank);
   try {
@@ -293,8 +323,11 @@ void serve_as_worker(const Study& study, int threads) {
     std::condition_variable work_ready, result_ready;
     std::deque<std::size_t> queue;   // assigned, not started
     std::deque<std::string> outbox;  // finished, encoded, not sent
+    std::deque<unsigned long long> cut;  // cut short by a stop, not yet reported (CANCELLED)
     std::exception_ptr failure;
     bool closed = false;
+    std::atomic<bool> cancel{false};  // CANCEL from rank 0
+    const StopToken cut_short([&] { return cancel.load() || (stop_requested && stop_requested()); });
     DrawContextCache cache;
     std::vector<std::thread> pool;
     for (int t = 0; t < slots; ++t)
@@ -310,9 +343,12 @@ void serve_as_worker(const Study& study, int threads) {
           }
           try {
             const UnitId& u = units[index];
-            std::string text = io::Journal::record(index, run_unit(study, u, cache.get(study, u)));
+            std::string text = io::Journal::record(index, run_unit(study, u, cache.get(study, u, cut_short), cut_short));
             std::lock_guard lock(mutex);
             outbox.push_back(std::move(text));
+          } catch (const Cancelled&) {
+            std::lock_guard lock(mutex);
+            cut.push_back(index);
           } catch (...) {
             const std::string message =
                 fmt::format("unit (scenario {}, environment {}, replicate {}): {}", units[index].scenario,
@@ -330,15 +366,19 @@ void serve_as_worker(const Study& study, int threads) {
     try {          // inside the pool's scope: abort the job before joinable threads would be destroyed
       while (!stop) {
         std::deque<std::string> finished;
+        std::deque<unsigned long long> abandoned;
         std::exception_ptr error;
         {
           std::lock_guard lock(mutex);
           finished.swap(outbox);
+          abandoned.swap(cut);
           error = failure;
         }
         for (const auto& text : finished)
           MPI_Send(text.data(), static_cast<int>(text.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD);
-        held -= static_cast<int>(finished.size());
+        for (unsigned long long index : abandoned)
+          MPI_Send(&index, 1, MPI_UNSIGNED_LONG_LONG, 0, cancelled_tag, MPI_COMM_WORLD);
+        held -= static_cast<int>(finished.size() + abandoned.size());
         if (error)
           abort_job(rank, what(error) +
                               " (the units finished so far are in units.journal: run the same command again "
@@ -360,6 +400,13 @@ void serve_as_worker(const Study& study, int threads) {
             }
             ++held;
             work_ready.notify_one();
+          } else if (status.MPI_TAG == cancel_tag) {
+            MPI_Recv(nullptr, 0, MPI_BYTE, 0, cancel_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            cancel = true;  // the units held answer RESULT or CANCELLED; rank 0 then sends STOP
+            {
+              std::lock_guard lock(mutex);
+              queue_cancelled(queue, cut);
+            }
           } else if (status.MPI_TAG == stop_tag) {
             MPI_Recv(nullptr, 0, MPI_BYTE, 0, stop_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
             stop = true;  // rank 0 stops a worker only when it has nothing in flight
@@ -368,14 +415,14 @@ void serve_as_worker(const Study& study, int threads) {
           }
           continue;
         }
-        if (!finished.empty()) backoff.reset();
-        // Wake for a finished unit at once. With every slot holding a unit no message can come
-        // (rank 0 writes to a worker only to fill a free slot, or to stop one holding nothing), so
-        // wait for nothing else; otherwise a reply is due soon: poll for it.
-        const auto done = [&] { return !outbox.empty() || failure != nullptr; };
+        if (!finished.empty() || !abandoned.empty()) backoff.reset();
+        // Wake for a finished unit at once. With every slot holding a unit only CANCEL can come
+        // (rank 0 writes to a worker only to fill a free slot, to stop one holding nothing, or to
+        // cancel): look for it every 100 ms; otherwise a reply is due soon: poll for it.
+        const auto done = [&] { return !outbox.empty() || !cut.empty() || failure != nullptr; };
         std::unique_lock lock(mutex);
         if (held == slots)
-          result_ready.wait(lock, done);
+          result_ready.wait_for(lock, Micros(100000), done);
         else
           result_ready.wait_for(lock, backoff.next(Micros(1000)), done);
       }

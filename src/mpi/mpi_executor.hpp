@@ -35,10 +35,19 @@
 //   tag 4 STOP    0 -> worker  empty: no more work; sent once, when the queue is exhausted (or a
 //                              stop was requested, or a unit failed) and the worker has nothing in
 //                              flight, so no message is ever left unreceived.
+//   tag 5 CANCELLED worker -> 0  one unsigned long long: a unit cut short by a stop (stop.hpp); it
+//                              frees its slot and nothing is recorded. Rank 0 then stops the run as
+//                              if it had been signalled itself (a rank that stops would cut short
+//                              every unit handed to it again).
+//   tag 6 CANCEL  0 -> worker  empty: a stop was requested on rank 0; the worker abandons the units
+//                              it holds (each answers RESULT if it was finished, else CANCELLED).
+//                              Sent once per worker holding units, when rank 0 first sees the stop.
 // Rank 0 calls hooks.on_unit for remote units from its main thread and for local units from its
 // compute threads, always under one mutex (never two at once). When hooks.stop_requested() turns
-// true (SIGINT on rank 0), no new unit is handed out, units in flight are collected and recorded,
-// and then every worker is stopped. A failure on a worker (an exception while computing) is
+// true (SIGTERM or SIGINT on rank 0), no new unit is handed out, the units in progress are cut
+// short (rank 0's own through the stop token, the workers' by CANCEL, or by their own signal: mpirun
+// signals every rank), finished ones are still recorded, cut ones never, and then every worker is
+// stopped: the journal holds only complete units and a rerun resumes. A failure on a worker (an exception while computing) is
 // printed with the rank and ends the job with MPI_Abort: rank 0 cannot finish without that unit,
 // and every unit finished so far is already in units.journal, so a rerun resumes. A failure on
 // rank 0 stops handing out work, collects what is in flight, stops the workers and is rethrown.
@@ -47,10 +56,12 @@
 // the main threads poll with MPI_Iprobe and sleeps, backing off from 50 us after a message to a
 // cap. Rank 0's cap is 1% of the mean unit time, within [1 ms, 10 ms] (each wake-up costs about
 // 50 us of a shared core in a virtual machine; each ms of cap delays a worker's next unit by half
-// a ms). A worker whose slots all hold a unit expects no message, so it sleeps until a unit
-// finishes; with a free slot it polls for rank 0's reply, capped at 1 ms.
+// a ms). A worker whose slots all hold a unit expects no message but CANCEL, so it sleeps until a
+// unit finishes or 100 ms pass (10 wake-ups a second: a stop reaches its units within about 0.1 s);
+// with a free slot it polls for rank 0's reply, capped at 1 ms.
 #pragma once
 #include <cstddef>
+#include <functional>
 #include <vector>
 
 #include "core/runner.hpp"
@@ -107,6 +118,7 @@ class Coordinator {
 
 // Ranks 1..P-1: announce `threads` slots to rank 0, compute the units it assigns on that many
 // threads, send back their rows, return when told to stop. Never touches the run directory.
-void serve_as_worker(const Study& study, int threads);
+// `stop_requested` (this rank's signal, thread-safe) cuts the units in progress short, like CANCEL.
+void serve_as_worker(const Study& study, int threads, std::function<bool()> stop_requested = {});
 
 }  // namespace dobudget::mpi

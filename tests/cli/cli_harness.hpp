@@ -16,8 +16,9 @@ struct Result {
   std::string out;  // stdout and stderr together
 };
 
-inline Result run(const std::string& args) {
-  const std::string cmd = std::string(DOBUDGET_BINARY) + " " + args + " 2>&1";
+// Runs a shell command line, stdout and stderr together.
+inline Result run_command(const std::string& command_line) {
+  const std::string cmd = command_line + " 2>&1";
   Result r;
   FILE* p = popen(cmd.c_str(), "r");
   char buf[4096];
@@ -27,6 +28,9 @@ inline Result run(const std::string& args) {
   r.code = WIFEXITED(status) ? WEXITSTATUS(status) : -1;
   return r;
 }
+
+// Runs dobudget with these arguments.
+inline Result run(const std::string& args) { return run_command(std::string(DOBUDGET_BINARY) + " " + args); }
 
 inline std::string slurp(const std::filesystem::path& f) {
   std::ifstream in(f, std::ios::binary);

@@ -1,7 +1,10 @@
 // End-to-end checks of resuming `dobudget plan` (issue 5; design.md sec. 6): a run killed part-way
 // (SIGKILL) or interrupted (SIGINT) and run again computes only what is missing and ends with the
 // same runs.csv and answer.csv as an uninterrupted run; a torn last journal record is dropped and
-// its unit computed again; a damaged record before the last is an error.
+// its unit computed again; a damaged record before the last is an error. Hardening: a flipped bit
+// anywhere in a record (its unit index included), a record holding another unit's rows, and a
+// journal of another study are refused with exit code 2 and nothing written; of two plans racing
+// for one new directory exactly one claims it.
 #include <catch2/catch.hpp>
 #include <fcntl.h>
 #include <spawn.h>
@@ -14,6 +17,7 @@
 
 #include "cli_harness.hpp"
 #include "io/journal.hpp"
+#include "io/run_directory.hpp"
 
 extern char** environ;
 
@@ -56,10 +60,12 @@ pid_t spawn(const std::vector<std::string>& args, const fs::path& log) {
   return pid;
 }
 
+// Lines after the header line.
 std::size_t finished_records(const fs::path& journal) {
   if (!fs::exists(journal)) return 0;
   const std::string text = slurp(journal);
-  return static_cast<std::size_t>(std::count(text.begin(), text.end(), '\n'));
+  const auto lines = static_cast<std::size_t>(std::count(text.begin(), text.end(), '\n'));
+  return lines > 0 ? lines - 1 : 0;
 }
 
 // Waits until `journal` holds at least one finished unit (the child still running); false if the
@@ -196,8 +202,8 @@ TEST_CASE("resume: a torn last journal record is dropped and its unit computed a
   const fs::path journal = s / "run" / "units.journal";
   const std::string runs = slurp(s / "run" / "runs.csv"), answer = slurp(s / "run" / "answer.csv");
   const std::vector<std::string> records = lines(slurp(journal));
-  REQUIRE(records.size() == 6);
-  const std::vector<std::string> first_five(records.begin(), records.end() - 1);
+  REQUIRE(records.size() == 7);  // the header and 6 units
+  const std::vector<std::string> first_five(records.begin(), records.end() - 1);  // with the header
 
   SECTION("the last record cut in half, without its end of line (killed while writing)") {
     write(journal, join_lines(first_five) + records.back().substr(0, records.back().size() / 2));
@@ -226,8 +232,8 @@ TEST_CASE("resume: a damaged journal record before the last is an error naming t
   REQUIRE(run(cmd).code == 0);
   const fs::path journal = s / "run" / "units.journal";
   std::vector<std::string> records = lines(slurp(journal));
-  REQUIRE(records.size() == 6);
-  records[1].pop_back();  // record 2 loses its last character
+  REQUIRE(records.size() == 7);  // the header and 6 units
+  records[2].pop_back();         // the second record (line 3) loses its last character
   const std::string damaged = join_lines(records);
   write(journal, damaged);
   const std::string runs = slurp(s / "run" / "runs.csv");
@@ -235,7 +241,167 @@ TEST_CASE("resume: a damaged journal record before the last is an error naming t
   const Result r = run(cmd);
   INFO(r.out);
   CHECK(r.code == 2);
-  CHECK(r.out.find(journal.string() + ": record 2 (line 2) is damaged") != std::string::npos);
+  CHECK(r.out.find(journal.string() + ":3: damaged record") != std::string::npos);
   CHECK(slurp(journal) == damaged);  // left as it was, for the user to look at
   CHECK(slurp(s / "run" / "runs.csv") == runs);
+}
+
+namespace {
+
+// A finished tiny run in s/run, its journal's lines (the header first) and its runs.csv.
+struct TinyRun {
+  std::string cmd;
+  fs::path journal;
+  std::vector<std::string> records;
+  std::string runs;
+};
+
+TinyRun tiny_run(const Scratch& s) {
+  write(s / "study.yaml", tiny_study);
+  TinyRun t;
+  // One thread: the records come in unit order.
+  t.cmd = "plan " + (s / "study.yaml").string() + " --quiet --threads 1 --out " + (s / "run").string();
+  const Result r = run(t.cmd);
+  INFO(r.out);
+  REQUIRE(r.code == 0);
+  t.journal = s / "run" / "units.journal";
+  t.records = lines(slurp(t.journal));
+  REQUIRE(t.records.size() == 7);
+  t.runs = slurp(s / "run" / "runs.csv");
+  return t;
+}
+
+}  // namespace
+
+TEST_CASE("resume: a flipped bit in a record's unit index or any field is refused, not trusted",
+          "[cli][resume][journal]") {
+  // The reproduced bug: a bit flipped in the unit index passed the checksum (which covered only the
+  // payload), and plan wrote runs.csv with one unit twice and another missing, then exited 1.
+  Scratch s("flipped");
+  const TinyRun t = tiny_run(s);
+  const std::string& rec = t.records[2];  // unit 1 (line 3)
+  REQUIRE(rec.rfind("1\t", 0) == 0);
+  const std::size_t t1 = rec.find('\t'), t2 = rec.find('\t', t1 + 1);
+  // One byte each of the index, the checksum, a key cell and a measure of the payload.
+  for (const std::size_t at : {std::size_t{0}, t1 + 3, t2 + 1, rec.size() - 5}) {
+    std::vector<std::string> flipped = t.records;
+    flipped[2][at] = static_cast<char>(flipped[2][at] ^ 0x02);  // '1' <-> '3' in the index
+    const std::string damaged = join_lines(flipped);
+    write(t.journal, damaged);
+    const Result r = run(t.cmd);
+    INFO("byte " << at << "\n" << r.out);
+    CHECK(r.code == 2);
+    CHECK(r.out.find(t.journal.string() + ":3: damaged record") != std::string::npos);
+    CHECK(slurp(t.journal) == damaged);              // left as it was, for the user to look at
+    CHECK(slurp(s / "run" / "runs.csv") == t.runs);  // never a runs.csv that is not the study's rows
+  }
+  // Deleting the line, as the message says, has the unit computed again.
+  std::vector<std::string> without = t.records;
+  without.erase(without.begin() + 2);
+  write(t.journal, join_lines(without));
+  const Result r = run(t.cmd);
+  INFO(r.out);
+  CHECK(r.code == 0);
+  CHECK(r.out.find("(5 resumed)") != std::string::npos);
+  CHECK(slurp(s / "run" / "runs.csv") == t.runs);
+}
+
+TEST_CASE("resume: a record whose rows belong to another unit is refused with its line", "[cli][resume][journal]") {
+  Scratch s("foreign-record");
+  const TinyRun t = tiny_run(s);
+  std::size_t intact = 0;
+  bool torn = false;
+  const auto units = dobudget::io::Journal::parse(slurp(t.journal), &intact, &torn);
+  REQUIRE(units.size() == 6);
+  // Intact checksums, rows of the wrong units: unit 4's rows recorded as unit 1 and the reverse.
+  std::vector<std::string> swapped = t.records;
+  for (std::size_t line = 1; line < swapped.size(); ++line) {
+    const std::size_t index = std::stoul(swapped[line].substr(0, swapped[line].find('\t')));
+    if (index == 1 || index == 4) {
+      std::string rec = dobudget::io::Journal::record(index, units.at(5 - index));
+      rec.pop_back();
+      swapped[line] = rec;
+    }
+  }
+  write(t.journal, join_lines(swapped));
+  const Result r = run(t.cmd);
+  INFO(r.out);
+  CHECK(r.code == 2);
+  // Whichever of the two records comes first in the journal (units finish in any order) is named.
+  CHECK((r.out.find("the record of unit 1 does not belong to it") != std::string::npos ||
+         r.out.find("the record of unit 4 does not belong to it") != std::string::npos));
+  CHECK(r.out.find(t.journal.string() + ":") != std::string::npos);
+  CHECK(slurp(s / "run" / "runs.csv") == t.runs);
+}
+
+TEST_CASE("resume: a journal of another study, or without its header, is refused", "[cli][resume][journal]") {
+  Scratch s("foreign-journal");
+  const TinyRun t = tiny_run(s);
+  write(s / "other.yaml", std::string(tiny_study) + "assurance: 0.9\n");
+  REQUIRE(run("plan " + (s / "other.yaml").string() + " --quiet --out " + (s / "other").string()).code == 0);
+
+  const std::string foreign = slurp(s / "other" / "units.journal");
+  write(t.journal, foreign);
+  Result r = run(t.cmd);
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK(r.out.find(t.journal.string() + ":1: belongs to another study") != std::string::npos);
+  CHECK(r.out.find(dobudget::io::study_hash(slurp(s / "run" / "study.resolved.yaml"))) != std::string::npos);
+  CHECK(slurp(t.journal) == foreign);
+  CHECK(slurp(s / "run" / "runs.csv") == t.runs);
+
+  const std::vector<std::string> headerless(t.records.begin() + 1, t.records.end());  // as dobudget 1 wrote it
+  write(t.journal, join_lines(headerless));
+  r = run(t.cmd);
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK(r.out.find(t.journal.string() + ":1: has no journal header") != std::string::npos);
+}
+
+TEST_CASE("resume: of two plans of different studies started together on one new directory, exactly one wins",
+          "[cli][resume][race]") {
+  // The reproduced bug: in 7-10% of tries one process wrote its units under the other study's
+  // study.resolved.yaml. Tiny studies, so that the 20 tries take a few seconds.
+  Scratch s("race");
+  const std::vector<std::string> names{"a", "b"};
+  write(s / "a.yaml", tiny_study);
+  std::string b = tiny_study;
+  b.replace(b.find("seed: 7"), 7, "seed: 8");  // other rows
+  write(s / "b.yaml", b);
+  std::vector<std::string> ref_runs, ref_resolved;
+  for (const auto& n : names) {
+    const Result r = run("plan " + (s / (n + ".yaml")).string() + " --quiet --threads 1 --out " + (s / ("ref-" + n)).string());
+    INFO(r.out);
+    REQUIRE(r.code == 0);
+    ref_runs.push_back(slurp(s / ("ref-" + n) / "runs.csv"));
+    ref_resolved.push_back(slurp(s / ("ref-" + n) / "study.resolved.yaml"));
+  }
+  REQUIRE(ref_runs[0] != ref_runs[1]);
+
+  int a_won = 0, b_won = 0;
+  for (int trial = 0; trial < 20; ++trial) {
+    const fs::path out = s / ("race-" + std::to_string(trial));
+    std::vector<pid_t> pids;
+    for (const auto& n : names)
+      pids.push_back(spawn({"plan", (s / (n + ".yaml")).string(), "--quiet", "--threads", "1", "--out", out.string()},
+                           s / (n + ".log")));
+    std::vector<Exit> exits;
+    for (pid_t p : pids) exits.push_back(wait_for(p));
+    const std::string log_a = slurp(s / "a.log"), log_b = slurp(s / "b.log");
+    INFO("trial " << trial << "\na: " << log_a << "\nb: " << log_b);
+    REQUIRE_FALSE(exits[0].signalled);
+    REQUIRE_FALSE(exits[1].signalled);
+    REQUIRE(((exits[0].code == 0 && exits[1].code == 2) || (exits[0].code == 2 && exits[1].code == 0)));
+    const std::size_t winner = exits[0].code == 0 ? 0 : 1;
+    (winner == 0 ? a_won : b_won)++;
+    const std::string& loser_log = winner == 0 ? log_b : log_a;
+    CHECK(loser_log.find("error: " + out.string()) != std::string::npos);  // names the directory
+    // The winner's directory holds its study and only its study's rows.
+    CHECK(slurp(out / "study.resolved.yaml") == ref_resolved[winner]);
+    CHECK(slurp(out / "runs.csv") == ref_runs[winner]);
+    // And `answer` accepts it as a finished run of that study.
+    CHECK(run("answer " + out.string()).code == 0);
+  }
+  INFO("a won " << a_won << ", b won " << b_won);
+  CHECK(a_won + b_won == 20);
 }

@@ -7,6 +7,8 @@
 #include <algorithm>
 
 #include "cli_harness.hpp"
+#include "io/journal.hpp"
+#include "io/run_directory.hpp"
 
 using namespace cli_test;
 
@@ -129,7 +131,8 @@ TEST_CASE("merge: refuses missing shards, naming them", "[cli][merge]") {
   // says how to resume it.
   const std::string journal = slurp(s / "part-1" / "units.journal");
   fs::remove(s / "part-1" / "manifest.json");
-  write(s / "part-1" / "units.journal", journal.substr(0, journal.find('\n') + 1));  // 1 of its 2 units
+  const std::size_t first_record_end = journal.find('\n', journal.find('\n') + 1) + 1;  // after the header line
+  write(s / "part-1" / "units.journal", journal.substr(0, first_record_end));          // 1 of its 2 units
   const Result killed = merge(s, {"part-0", "part-1", "part-2"}, "merged");
   INFO(killed.out);
   CHECK(killed.code == 2);
@@ -183,14 +186,14 @@ TEST_CASE("merge: refuses an input with a torn or damaged journal, and an --out 
   CHECK_FALSE(fs::exists(s / "merged"));
   CHECK(slurp(journal) == intact.substr(0, intact.size() - 40));  // inputs are never modified
 
-  // A damaged first record (of two) is not a torn tail.
+  // A damaged first record (of two; line 2, after the header) is not a torn tail.
   std::string damaged = intact;
   damaged[damaged.find('\t') + 1] = damaged[damaged.find('\t') + 1] == '0' ? '1' : '0';
   write(journal, damaged);
   r = merge(s, {"part-0", "part-1", "part-2"}, "merged");
   INFO(r.out);
   CHECK(r.code == 2);
-  CHECK(r.out.find(journal.string() + ": record 1 (line 1) is damaged") != std::string::npos);
+  CHECK(r.out.find(journal.string() + ":2: damaged record (checksum mismatch)") != std::string::npos);
   CHECK_FALSE(fs::exists(s / "merged"));
   write(journal, intact);
 
@@ -223,4 +226,65 @@ TEST_CASE("merge: refuses an input with a torn or damaged journal, and an --out 
 
   // With every input intact again, the merge goes through.
   REQUIRE(merge(s, {"part-0", "part-1", "part-2"}, "merged").code == 0);
+}
+
+TEST_CASE("merge: applies the journal's checks to every input: its study, each record's unit, the header",
+          "[cli][merge][journal]") {
+  Scratch s("merge-records");
+  make_three_shards(s);
+  const fs::path journal = s / "part-1" / "units.journal";
+  const std::string intact = slurp(journal);
+  const std::string header = intact.substr(0, intact.find('\n') + 1);
+  CHECK(header == dobudget::io::Journal::header(dobudget::io::study_hash(slurp(s / "part-1" / "study.resolved.yaml"))));
+
+  // A record with an intact checksum whose rows are another unit's: shard 1/3 holds units 1 and
+  // 4; unit 4's rows are written under index 1 (and unit 1's under 4).
+  std::size_t intact_bytes = 0;
+  bool torn = false;
+  const auto units = dobudget::io::Journal::parse(intact, &intact_bytes, &torn);
+  REQUIRE(units.size() == 2);
+  const std::string swapped =
+      header + dobudget::io::Journal::record(1, units.at(4)) + dobudget::io::Journal::record(4, units.at(1));
+  write(journal, swapped);
+  Result r = merge(s, {"part-0", "part-1", "part-2"}, "merged");
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK(r.out.find(journal.string() + ":2: the record of unit 1 does not belong to it") != std::string::npos);
+  CHECK_FALSE(fs::exists(s / "merged"));
+  CHECK(slurp(journal) == swapped);  // inputs are never modified
+
+  // A journal without the header (format 1), or of another study.
+  write(journal, intact.substr(header.size()));
+  r = merge(s, {"part-0", "part-1", "part-2"}, "merged");
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK(r.out.find(journal.string() + ":1: has no journal header") != std::string::npos);
+  write(journal, dobudget::io::Journal::header("0000000000000000") + intact.substr(header.size()));
+  r = merge(s, {"part-0", "part-1", "part-2"}, "merged");
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK(r.out.find(journal.string() + ":1: belongs to another study") != std::string::npos);
+  CHECK_FALSE(fs::exists(s / "merged"));
+
+  // A study.resolved.yaml edited in one input (in all of them alike, so they agree) after planning.
+  write(journal, intact);
+  const std::string resolved = slurp(s / "part-0" / "study.resolved.yaml");
+  for (int k = 0; k < 3; ++k) write(s / ("part-" + std::to_string(k)) / "study.resolved.yaml", resolved + "# edited\n");
+  r = merge(s, {"part-0", "part-1", "part-2"}, "merged");
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK(r.out.find("study.resolved.yaml: has study hash") != std::string::npos);
+  CHECK(r.out.find("was edited after the run") != std::string::npos);
+  CHECK_FALSE(fs::exists(s / "merged"));
+  for (int k = 0; k < 3; ++k) write(s / ("part-" + std::to_string(k)) / "study.resolved.yaml", resolved);
+
+  // Intact again: the merged journal has the header, and `plan` resumes it as a finished run.
+  REQUIRE(merge(s, {"part-0", "part-1", "part-2"}, "merged").code == 0);
+  CHECK(slurp(s / "merged" / "units.journal").rfind(header, 0) == 0);
+  const std::string runs = slurp(s / "merged" / "runs.csv");
+  r = run("plan " + (s / "study.yaml").string() + " --quiet --out " + (s / "merged").string());
+  INFO(r.out);
+  CHECK(r.code == 0);
+  CHECK(r.out.find("(6 resumed)") != std::string::npos);
+  CHECK(slurp(s / "merged" / "runs.csv") == runs);
 }

@@ -54,6 +54,8 @@ std::optional<double> parse_opt(const std::string& s) {
   return parse(s);
 }
 
+bool contains(const std::string& hay, const std::string& needle) { return hay.find(needle) != std::string::npos; }
+
 bool same(double a, double b) { return (std::isnan(a) && std::isnan(b)) || a == b; }
 
 std::vector<AnswerRow> sample_rows() {
@@ -175,8 +177,8 @@ TEST_CASE("answer.md: tables, criterion, statuses and caution", "[answer_table]"
   ss << in.rdbuf();
   const std::string md = ss.str();
   CHECK(md.find("# Pilot episodes needed: example") != std::string::npos);
-  CHECK(md.find("## Scenario 0: logging.privilege=0.5") != std::string::npos);
-  CHECK(md.find("## Scenario 1: logging.privilege=0.9") != std::string::npos);
+  CHECK(md.find("## Scenario 0: logging\\.privilege=0\\.5") != std::string::npos);  // labels: markdown_text
+  CHECK(md.find("## Scenario 1: logging\\.privilege=0\\.9") != std::string::npos);
   CHECK(md.find("Criterion `assurance`: at least 80% of") != std::string::npos);
   CHECK(md.find("Criterion `mean`") != std::string::npos);
   CHECK(md.find("| pilot-only | 0 | 209 | [102, 334] | reached |") != std::string::npos);
@@ -232,4 +234,32 @@ TEST_CASE("answer table: worst case over scenarios takes the largest need, unkno
   CHECK(w[0].needed_pilot == 30.0);
   CHECK(w[1].scenario == 1);
   CHECK(std::isnan(w[1].needed_pilot));
+}
+
+TEST_CASE("answer.md: a hostile study name and labels are shown literally, on one line", "[answer_table]") {
+  // User text goes through markdown_text / markdown_cell (text_escape.hpp): CommonMark 0.31.2,
+  // sections 2.4 and 2.5; GFM spec 0.29, section 4.10 for the pipe in a table cell.
+  const std::string name = "x`touch PWNED`y\n# injected](http://e)<script>";
+  const std::string md =
+      io::format_answer_md(name, {"a=1\n## Caution", "b|c=2 <b>bold</b>"}, sample_rows());
+  CHECK(md.rfind("# Pilot episodes needed: x\\`touch PWNED\\`y \\# injected\\]\\(http\\://e\\)&lt;script&gt;\n\n", 0) == 0);
+  CHECK(contains(md, "\n## Scenario 0: a=1 \\#\\# Caution\n"));
+  CHECK(contains(md, "\n## Scenario 1: b\\|c=2 &lt;b&gt;bold&lt;/b&gt;\n"));
+  // The worst-case table names the scenario in its last cell: the row keeps its nine cells (ten
+  // unescaped pipes), the pipe in the label escaped.
+  const auto at = md.find(" | b\\|c=2 &lt;b&gt;bold&lt;/b&gt; |\n");
+  REQUIRE(at != std::string::npos);
+  const auto row_start = md.rfind('\n', at) + 1;
+  const std::string row = md.substr(row_start, md.find('\n', at) - row_start);
+  int pipes = 0;
+  for (std::size_t i = 0; i < row.size(); ++i)
+    if (row[i] == '|' && (i == 0 || row[i - 1] != '\\')) ++pipes;
+  CHECK(pipes == 10);
+  CHECK_FALSE(contains(md, "<script>"));
+  CHECK_FALSE(contains(md, "](http://e)"));
+  CHECK_FALSE(contains(md, "\n# injected"));
+  // Exactly one "## Caution" heading: the label cannot make a second one.
+  std::size_t cautions = 0;
+  for (auto p = md.find("\n## Caution"); p != std::string::npos; p = md.find("\n## Caution", p + 1)) ++cautions;
+  CHECK(cautions == 1);
 }

@@ -1,6 +1,8 @@
 // The unit journal (io/journal.hpp): records read back bit for bit, a torn last record is dropped
 // (never half-read) and the file truncated to its intact prefix, a damaged record before the last
-// is an error naming the file and the record, and one writer at a time.
+// is an error naming the file and the line, one flipped bit anywhere in a record or the header is
+// caught, a journal of another study (or without a header) is refused, a record that is not its
+// unit's or repeats a unit is refused, and one writer at a time.
 #include <catch2/catch.hpp>
 #include <unistd.h>
 
@@ -12,14 +14,18 @@
 #include <limits>
 #include <sstream>
 
+#include "input_error_of.hpp"
 #include "io/journal.hpp"
 
 namespace fs = std::filesystem;
 using dobudget::RunRecord;
 using dobudget::Strategy;
 using dobudget::io::Journal;
+using dobudget::test::error_of;
 
 namespace {
+
+const std::string hash = "0123456789abcdef";  // the study hash the journals below belong to
 
 struct TempDir {
   fs::path path;
@@ -43,7 +49,7 @@ void write(const fs::path& f, const std::string& text) { std::ofstream(f, std::i
 std::uint64_t bits(double x) { return std::bit_cast<std::uint64_t>(x); }
 
 // Rows of one unit with awkward doubles: values with no short decimal form, extremes, negative
-// zero, infinity, missing values.
+// zero, infinity, missing values (each within its column's range: runs_table.hpp).
 std::vector<RunRecord> unit_rows(int replicate) {
   const std::vector<double> values{0.1,
                                    1.0 / 3.0,
@@ -66,8 +72,10 @@ std::vector<RunRecord> unit_rows(int replicate) {
         r.strategy = st;
         r.logged = logged;
         r.pilot = pilot;
-        r.model_kl = values[static_cast<std::size_t>(k) % values.size()];
-        if (k % 4 != 3) r.return_gap = -values[static_cast<std::size_t>(k + 3) % values.size()];
+        const double v = values[static_cast<std::size_t>(k) % values.size()];
+        r.model_kl = std::signbit(v) && v != 0.0 ? -v : v;  // >= 0, -0.0 and +inf included
+        const double g = -values[static_cast<std::size_t>(k + 3) % values.size()];
+        if (k % 4 != 3) r.return_gap = std::isfinite(g) ? g : 0.5;  // finite
         r.loglik = -values[static_cast<std::size_t>(k + 5) % values.size()] * 1000.0;
         r.iterations = k * 7;
         r.converged = k % 3 != 0;
@@ -101,13 +109,21 @@ void require_same(const std::vector<RunRecord>& a, const std::vector<RunRecord>&
   }
 }
 
+// A check as plan_study makes it: unit i is replicate i of (scenario 1, environment 2).
+std::string replicate_check(std::size_t index, const std::vector<RunRecord>& rows) {
+  if (index > 9) return "the study has units 0 to 9 only";
+  for (const auto& r : rows)
+    if (r.replicate != static_cast<int>(index)) return "it holds a row of replicate " + std::to_string(r.replicate);
+  return {};
+}
+
 }  // namespace
 
-TEST_CASE("journal: records read back bit for bit", "[io][journal]") {
+TEST_CASE("journal: records read back bit for bit, after a header naming the study", "[io][journal]") {
   TempDir d("roundtrip");
   const fs::path file = d.path / "units.journal";
   {
-    Journal j(file);
+    Journal j(file, hash);
     CHECK(j.units().empty());
     CHECK_FALSE(j.torn_tail_dropped());
     j.append(4, unit_rows(0));
@@ -115,10 +131,11 @@ TEST_CASE("journal: records read back bit for bit", "[io][journal]") {
     j.append(17, unit_rows(2));
   }
   const std::string text = slurp(file);
-  CHECK(std::count(text.begin(), text.end(), '\n') == 3);
-  CHECK(text.rfind(Journal::record(4, unit_rows(0)), 0) == 0);  // append writes record() as is
+  CHECK(std::count(text.begin(), text.end(), '\n') == 4);
+  CHECK(Journal::header(hash) == "dobudget-journal 2 study 0123456789abcdef\n");
+  CHECK(text.rfind(Journal::header(hash) + Journal::record(4, unit_rows(0)), 0) == 0);  // append writes record() as is
 
-  Journal j(file);
+  Journal j(file, hash);
   CHECK_FALSE(j.torn_tail_dropped());
   REQUIRE(j.units().size() == 3);
   require_same(j.units().at(4), unit_rows(0));
@@ -128,16 +145,16 @@ TEST_CASE("journal: records read back bit for bit", "[io][journal]") {
 
   std::size_t intact = 0;
   bool torn = true;
-  const auto parsed = Journal::parse(text, &intact, &torn);
+  CHECK(Journal::parse_file(text, hash, &intact, &torn).size() == 3);
   CHECK(intact == text.size());
   CHECK_FALSE(torn);
-  CHECK(parsed.size() == 3);
+  CHECK(Journal::parse(text, &intact, &torn).size() == 3);  // records only: the header is skipped
 }
 
 TEST_CASE("journal: a torn last record is dropped, truncated away, and never half-read", "[io][journal]") {
   TempDir d("torn");
   const fs::path file = d.path / "units.journal";
-  const std::string two = Journal::record(0, unit_rows(0)) + Journal::record(1, unit_rows(1));
+  const std::string two = Journal::header(hash) + Journal::record(0, unit_rows(0)) + Journal::record(1, unit_rows(1));
   const std::string third = Journal::record(2, unit_rows(2));
 
   // Every prefix of the third record (no end of line yet), and the whole of it with its CRC
@@ -153,7 +170,7 @@ TEST_CASE("journal: a torn last record is dropped, truncated away, and never hal
     INFO("tail: " << tail.substr(0, 60));
     std::size_t intact = 0;
     bool torn = false;
-    const auto parsed = Journal::parse(two + tail, &intact, &torn);
+    const auto parsed = Journal::parse_file(two + tail, hash, &intact, &torn);
     CHECK(torn);
     CHECK(intact == two.size());
     CHECK(parsed.size() == 2);
@@ -161,38 +178,182 @@ TEST_CASE("journal: a torn last record is dropped, truncated away, and never hal
 
     write(file, two + tail);
     {
-      Journal j(file);
+      Journal j(file, hash);
       CHECK(j.torn_tail_dropped());
       CHECK(j.units().size() == 2);
       CHECK(slurp(file) == two);  // truncated to the intact prefix
       j.append(2, unit_rows(2));  // the unit computed again
     }
-    Journal again(file);
+    Journal again(file, hash);
     CHECK_FALSE(again.torn_tail_dropped());
     REQUIRE(again.units().size() == 3);
     require_same(again.units().at(2), unit_rows(2));
   }
 }
 
-TEST_CASE("journal: a damaged record before the last is an error naming the file and the record", "[io][journal]") {
+TEST_CASE("journal: a damaged record before the last is an error naming the file and the line", "[io][journal]") {
   TempDir d("damaged");
   const fs::path file = d.path / "units.journal";
-  const std::string r0 = Journal::record(0, unit_rows(0)), r1 = Journal::record(1, unit_rows(1)),
-                    r2 = Journal::record(2, unit_rows(2));
+  const std::string h = Journal::header(hash), r0 = Journal::record(0, unit_rows(0)),
+                    r1 = Journal::record(1, unit_rows(1)), r2 = Journal::record(2, unit_rows(2));
   std::string damaged = r1;
   damaged[damaged.size() / 2] = damaged[damaged.size() / 2] == '7' ? '8' : '7';  // a changed digit: CRC mismatch
-  const std::string text = r0 + damaged + r2;
+  const std::string text = h + r0 + damaged + r2;
 
   std::size_t intact = 0;
   bool torn = false;
-  CHECK_THROWS_WITH(Journal::parse(text, &intact, &torn, "runs/x/units.journal"),
-                    Catch::Contains("runs/x/units.journal: record 2 (line 2) is damaged (checksum mismatch)"));
-  CHECK_THROWS_WITH(Journal::parse(r0 + "x\t00000000\t\n" + r2, &intact, &torn), Catch::Contains("record 2"));
-  CHECK_THROWS_WITH(Journal::parse(r0 + "\n" + r2, &intact, &torn), Catch::Contains("record 2"));  // an empty line
+  const auto e = error_of([&] { Journal::parse_file(text, hash, &intact, &torn, "runs/x/units.journal"); });
+  CHECK(e.file == "runs/x/units.journal");
+  CHECK(e.line == 3);  // the header is line 1
+  CHECK_THAT(e.what(), Catch::StartsWith("runs/x/units.journal:3: damaged record (checksum mismatch)"));
+  CHECK(error_of([&] { Journal::parse_file(h + r0 + "x\t00000000\t\n" + r2, hash, &intact, &torn); }).line == 3);
+  CHECK(error_of([&] { Journal::parse_file(h + r0 + "\n" + r2, hash, &intact, &torn); }).line == 3);  // an empty line
 
   write(file, text);
-  CHECK_THROWS_WITH(Journal(file), Catch::Contains(file.string() + ": record 2 (line 2) is damaged"));
+  CHECK_THROWS_WITH(Journal(file, hash), Catch::Contains(file.string() + ":3: damaged record"));
   CHECK(slurp(file) == text);  // nothing truncated or appended
+}
+
+TEST_CASE("journal: one flipped bit anywhere in a record, its unit index included, is caught", "[io][journal]") {
+  // The reproduced bug: the checksum covered only the payload, so a flipped bit in the unit index
+  // moved a unit's rows to another unit undetected. CRC-32 detects every single-bit error
+  // (Peterson and Brown 1961, "Cyclic codes for error detection").
+  const std::string h = Journal::header(hash), r0 = Journal::record(0, unit_rows(0)),
+                    r1 = Journal::record(1, unit_rows(1)), r2 = Journal::record(2, unit_rows(2)),
+                    r3 = Journal::record(3, unit_rows(3));
+  std::size_t intact = 0;
+  bool torn = false;
+
+  std::string index_flipped = r1;
+  index_flipped[0] ^= 0x02;  // '1' -> '3': a valid index, the unit of the record after next
+  CHECK(index_flipped.substr(0, 2) == "3\t");
+  const auto e = error_of([&] { Journal::parse_file(h + r0 + index_flipped + r2 + r3, hash, &intact, &torn); });
+  CHECK(e.line == 3);
+  CHECK_THAT(e.message, Catch::Contains("checksum mismatch"));
+
+  // Every bit of every byte of the second record (index, checksum, payload, end of line): refused
+  // at its line, never read as some other record.
+  std::size_t flips = 0;
+  for (std::size_t byte = 0; byte < r1.size(); ++byte)
+    for (int bit = 0; bit < 8; ++bit) {
+      std::string flipped = r1;
+      flipped[byte] = static_cast<char>(flipped[byte] ^ (1 << bit));
+      INFO("byte " << byte << " bit " << bit);
+      const auto err = error_of([&] { Journal::parse_file(h + r0 + flipped + r2 + r3, hash, &intact, &torn); });
+      CHECK(err.line == 3);
+      ++flips;
+    }
+  CHECK(flips == 8 * r1.size());
+
+  // Every bit of the last record: dropped as torn, the other units intact.
+  for (std::size_t byte = 0; byte + 1 < r3.size(); ++byte)
+    for (int bit = 0; bit < 8; ++bit) {
+      std::string flipped = r3;
+      flipped[byte] = static_cast<char>(flipped[byte] ^ (1 << bit));
+      INFO("last record, byte " << byte << " bit " << bit);
+      const auto units = Journal::parse_file(h + r0 + r1 + r2 + flipped, hash, &intact, &torn);
+      CHECK(torn);
+      CHECK(units.size() == 3);
+      CHECK(units.count(3) == 0);
+    }
+
+  // Every bit of the header: a journal of no known study or format, refused at line 1.
+  for (std::size_t byte = 0; byte + 1 < h.size(); ++byte)
+    for (int bit = 0; bit < 8; ++bit) {
+      std::string flipped = h;
+      flipped[byte] = static_cast<char>(flipped[byte] ^ (1 << bit));
+      if (flipped.find('\n') + 1 != flipped.size()) continue;  // a new LF: the header is cut, also refused below
+      INFO("header byte " << byte << " bit " << bit);
+      CHECK(error_of([&] { Journal::parse_file(flipped + r0 + r1, hash, &intact, &torn); }).line == 1);
+    }
+}
+
+TEST_CASE("journal: a journal of another study, of another format or without a header is refused", "[io][journal]") {
+  TempDir d("foreign");
+  const fs::path file = d.path / "units.journal";
+  const std::string records = Journal::record(0, unit_rows(0)) + Journal::record(1, unit_rows(1));
+  std::size_t intact = 0;
+  bool torn = false;
+
+  const auto other = error_of([&] {
+    Journal::parse_file(Journal::header("fedcba9876543210") + records, hash, &intact, &torn, "units.journal");
+  });
+  CHECK(other.line == 1);
+  CHECK_THAT(other.message, Catch::Contains("belongs to another study") && Catch::Contains("fedcba9876543210") &&
+                                Catch::Contains(hash));
+  const auto old = error_of([&] { Journal::parse_file(records, hash, &intact, &torn); });  // format 1: no header
+  CHECK(old.line == 1);
+  CHECK_THAT(old.message, Catch::Contains("has no journal header"));
+  const auto version = error_of([&] { Journal::parse_file("dobudget-journal 3 study " + hash + "\n", hash, &intact, &torn); });
+  CHECK_THAT(version.message, Catch::Contains("another format"));
+
+  // The constructor refuses it too, and changes nothing.
+  const std::string foreign = Journal::header("fedcba9876543210") + records;
+  write(file, foreign);
+  CHECK_THROWS_WITH(Journal(file, hash), Catch::Contains(file.string() + ":1: belongs to another study"));
+  CHECK(slurp(file) == foreign);
+
+  // A header torn before its end of line (killed while creating the journal) is written again.
+  write(file, Journal::header(hash).substr(0, 10));
+  {
+    Journal j(file, hash);
+    CHECK(j.torn_tail_dropped());
+    CHECK(j.units().empty());
+  }
+  CHECK(slurp(file) == Journal::header(hash));
+}
+
+TEST_CASE("journal: a record whose rows are not its unit's, or that repeats a unit, is refused", "[io][journal]") {
+  TempDir d("foreign-record");
+  const fs::path file = d.path / "units.journal";
+  const std::string h = Journal::header(hash);
+  std::size_t intact = 0;
+  bool torn = false;
+
+  // Unit 2's record holding the rows of replicate 3 (intact checksum: written so, not damaged).
+  const std::string swapped = h + Journal::record(1, unit_rows(1)) + Journal::record(2, unit_rows(3));
+  CHECK(Journal::parse_file(swapped, hash, &intact, &torn).size() == 2);  // no check: it parses
+  const auto e = error_of([&] { Journal::parse_file(swapped, hash, &intact, &torn, "units.journal", replicate_check); });
+  CHECK(e.line == 3);  // refused even as the last record: it is intact, not torn
+  CHECK_THAT(e.message, Catch::Contains("the record of unit 2 does not belong to it: it holds a row of replicate 3"));
+  const std::string beyond = h + Journal::record(12, unit_rows(12));
+  CHECK_THAT(error_of([&] { Journal::parse_file(beyond, hash, &intact, &torn, "units.journal", replicate_check); }).message,
+             Catch::Contains("units 0 to 9 only"));
+
+  const std::string twice = h + Journal::record(1, unit_rows(1)) + Journal::record(2, unit_rows(2)) +
+                            Journal::record(1, unit_rows(1));
+  const auto dup = error_of([&] { Journal::parse_file(twice, hash, &intact, &torn); });
+  CHECK(dup.line == 4);
+  CHECK_THAT(dup.message, Catch::Contains("unit 1 is recorded twice (lines 2 and 4)"));
+
+  write(file, swapped);
+  CHECK_THROWS_WITH(Journal(file, hash, {}, replicate_check),
+                    Catch::Contains(file.string() + ":3: the record of unit 2") &&
+                        Catch::Contains("Delete that line to have its unit computed again"));
+  CHECK(slurp(file) == swapped);
+}
+
+TEST_CASE("journal: the claim runs under the lock, and a journal created for a refused claim is removed",
+          "[io][journal]") {
+  TempDir d("claim");
+  const fs::path file = d.path / "units.journal";
+  bool ran = false;
+  {
+    Journal j(file, hash, [&] {
+      ran = true;
+      CHECK(Journal::in_use(file));  // the lock is held while the claim runs
+    });
+  }
+  CHECK(ran);
+  CHECK(slurp(file) == Journal::header(hash));
+
+  fs::remove(file);
+  CHECK_THROWS_WITH(Journal(file, hash, [] { throw std::runtime_error("claim refused"); }), "claim refused");
+  CHECK_FALSE(fs::exists(file));  // nothing left behind
+
+  write(file, Journal::header(hash));
+  CHECK_THROWS_WITH(Journal(file, hash, [] { throw std::runtime_error("claim refused"); }), "claim refused");
+  CHECK(slurp(file) == Journal::header(hash));  // a journal it did not create is left alone
 }
 
 TEST_CASE("journal: one writer at a time", "[io][journal]") {
@@ -200,12 +361,12 @@ TEST_CASE("journal: one writer at a time", "[io][journal]") {
   const fs::path file = d.path / "units.journal";
   CHECK_FALSE(Journal::in_use(file));  // no file yet
   {
-    Journal j(file);
+    Journal j(file, hash);
     j.append(0, unit_rows(0));
     CHECK(Journal::in_use(file));
-    CHECK_THROWS_WITH(Journal(file), Catch::Contains("is being written by another dobudget process"));
+    CHECK_THROWS_WITH(Journal(file, hash), Catch::Contains("is being written by another dobudget process"));
   }
   CHECK_FALSE(Journal::in_use(file));
-  Journal j(file);
+  Journal j(file, hash);
   CHECK(j.units().size() == 1);
 }

@@ -68,7 +68,7 @@ Environment random_environment(int S, int A, int O, bool with_logging_policy, st
   for (int o = 0; o < O; ++o) m.rewards(o) = n(rng) / 3.0;
   m.rewards(0) = -0.0;
   if (O > 1) m.rewards(1) = 4.9406564584124654e-324;  // the smallest subnormal
-  if (O > 2) m.rewards(2) = -1.7976931348623157e308;
+  if (O > 2) m.rewards(2) = -1e100;  // the largest |reward| a model may hold (model_file.hpp)
   if (with_logging_policy) {
     env.logging_policy = Matrix(S, A);
     for (int s = 0; s < S; ++s) env.logging_policy.row(s) = random_row(A, rng).transpose();
@@ -226,4 +226,41 @@ TEST_CASE("unreadable, malformed and empty model files", "[model_file]") {
   const InputError list = error_of([&] { load_model(dir.write("list.yaml", "- 1\n- 2\n"), 8, 1.0); });
   CHECK(list.line == 1);
   CHECK_THAT(list.message, Catch::Contains("got a list"));
+}
+
+// Hardening: a model file is refused (located InputError) before it can make the computation
+// overflow or allocate what its declared sizes promise.
+TEST_CASE("model files: declared sizes above the limit are refused before any matrix is read", "[model_file]") {
+  TempDir dir;
+  // Nothing but the sizes: were the sizes not checked first, the message would be about a missing
+  // or short `initial`, after sizing its rows by the declared number of states.
+  for (const std::string key : {"states", "actions", "observations"}) {
+    std::string text = "states: 2\nactions: 2\nobservations: 2\n";
+    const auto at = text.find(key + ": 2");
+    text.replace(at, key.size() + 3, key + ": 100000");
+    const fs::path file = dir.write(key + ".yaml", text);
+    const InputError e = error_of([&] { load_model(file, 8, 1.0); });
+    INFO(e.what());
+    CHECK(e.key == key);
+    CHECK_THAT(e.message, Catch::Contains("must be at most 200") && Catch::Contains("got 100000"));
+  }
+  // The limit itself is accepted as a size (the file is then refused later, for its missing rows).
+  const InputError e = error_of([&] { load_model(dir.write("max.yaml", "states: 200\nactions: 1\nobservations: 1\n"), 8, 1.0); });
+  CHECK(e.key == "initial");
+  CHECK(dobudget::io::max_model_size == 200);
+}
+
+TEST_CASE("model files: rewards beyond +-1e100 are refused, a reward of 1e308 included", "[model_file]") {
+  TempDir dir;
+  for (const std::string reward : {"1e308", "-1e101", "1.7976931348623157e308"}) {
+    const fs::path file = dir.write("r.yaml", base_with(13, "rewards: [0, " + reward + ", 1]"));
+    const InputError e = error_of([&] { load_model(file, 8, 1.0); });
+    INFO(e.what());
+    CHECK(e.line == 13);
+    CHECK(e.key == "rewards[1]");
+    CHECK_THAT(e.message, Catch::Contains("must be at most 1e+100 in absolute value"));
+  }
+  const Environment env = load_model(dir.write("ok.yaml", base_with(13, "rewards: [0, -1e100, 1e100]")), 8, 1.0);
+  CHECK(env.model.rewards(1) == -1e100);
+  CHECK(env.model.rewards(2) == 1e100);
 }

@@ -26,10 +26,12 @@
 #include "core/summary.hpp"
 #include "core/unit.hpp"
 #include "io/atomic_file.hpp"
+#include "io/child_process.hpp"
 #include "io/report.hpp"
 #include "io/run_directory.hpp"
 #include "io/runs_table.hpp"
 #include "io/study_file.hpp"
+#include "io/text_escape.hpp"
 
 namespace fs = std::filesystem;
 using namespace dobudget;
@@ -228,14 +230,14 @@ TEST_CASE("report: page, data, scripts and figures of a run directory", "[report
     }
   }
 
-  CHECK(contains(md, "# Report: report-test"));
+  CHECK(contains(md, "# Report: report\\-test"));  // user text, escaped (markdown_text)
   CHECK(contains(md, "This is a simulation under stated assumptions (the synthetic family or the given model, the "
                      "logging model, the pilot policy); it is no substitute for a qualified statistician, for ethics "
                      "review, or for local regulations on trials."));
   CHECK(contains(md, "](../study.resolved.yaml)"));
-  CHECK(contains(md, "| scenario | logging.privilege |"));
-  CHECK(contains(md, "| 1 | 0.9 |"));
-  CHECK(contains(md, "### Scenario 1: logging.privilege=0.9"));      // answer tables, one level down
+  CHECK(contains(md, "| scenario | logging\\.privilege |"));
+  CHECK(contains(md, "| 1 | 0\\.9 |"));
+  CHECK(contains(md, "### Scenario 1: logging\\.privilege=0\\.9"));  // answer tables, one level down
   CHECK(contains(md, "#### model_kl at most 0.05 (assurance 80%)"));
   CHECK(contains(md, "| regime-aware | 40 |"));
   CHECK(contains(md, "| `logging.privilege` | swept"));
@@ -255,9 +257,7 @@ TEST_CASE("report: a second run replaces the report; scripts redraw from report/
   // A user restyles a figure: run its script again from report/.
   const auto& f = out.figures.front();
   fs::remove(dir / "report" / f.image);
-  const std::string cmd = "cd " + io::shell_quote((dir / "report").string()) + " && gnuplot " + io::shell_quote(f.script) +
-                          " 2>/dev/null";
-  REQUIRE(std::system(cmd.c_str()) == 0);
+  REQUIRE(io::run_child(*io::find_program("gnuplot"), {f.script}, dir / "report").exit_code == 0);
   CHECK(fs::file_size(dir / "report" / f.image) > 1000);
 }
 
@@ -268,8 +268,6 @@ TEST_CASE("report: paths with spaces, quotes and dollars are passed to gnuplot s
   CHECK(fs::is_regular_file(dir / "report" / "report.md"));
   if (have_gnuplot())
     for (const auto& f : out.figures) CHECK(fs::is_regular_file(dir / "report" / f.image));
-  CHECK(io::shell_quote("a'b") == "'a'\\''b'");
-  CHECK(io::shell_quote("$x `y`") == "'$x `y`'");
 }
 
 TEST_CASE("report: the svg terminal when asked for", "[report]") {
@@ -358,4 +356,136 @@ TEST_CASE("report: errors name the problem and leave no half-written report", "[
     CHECK(text_of(run / "report" / "report.md") == before);
     CHECK_FALSE(leftovers(run));
   }
+}
+
+namespace {
+
+bool any_file_named(const fs::path& root, const std::string& name) {
+  std::error_code ec;
+  for (auto it = fs::recursive_directory_iterator(root, ec); !ec && it != fs::recursive_directory_iterator(); it.increment(ec))
+    if (it->path().filename() == name) return true;
+  return false;
+}
+
+std::vector<std::string> lines_of(const std::string& text) {
+  std::vector<std::string> out;
+  std::istringstream in(text);
+  std::string line;
+  while (std::getline(in, line)) out.push_back(line);
+  return out;
+}
+
+}  // namespace
+
+TEST_CASE("report: a hostile study name runs nothing and is shown only escaped", "[report]") {
+  // The reproduced bug: a name with `backquotes` went into a double-quoted gnuplot title, and
+  // gnuplot ran the command (it created PWNED); Markdown took line breaks, links and HTML raw.
+  TempDir tmp;
+  const fs::path dir = copy_run(tmp.path() / "run");
+  std::string hostile = "x`touch PWNED`y @x 'q' \"d\" back\\slash\nline2](http://e)<script>";
+  Study study = io::load_study(dir / "study.resolved.yaml");
+  study.name = hostile;
+  io::write_file_atomically(dir / "study.resolved.yaml", io::resolved_yaml(study));
+  try {
+    io::load_study(dir / "study.resolved.yaml");
+  } catch (const io::InputError&) {
+    // The study reader refuses control characters in names: the newline is then checked through
+    // summary_dat below and by the answer.md test, and everything else here.
+    hostile = "x`touch PWNED`y @x 'q' \"d\" back\\slash line2](http://e)<script>";
+    study.name = hostile;
+    io::write_file_atomically(dir / "study.resolved.yaml", io::resolved_yaml(study));
+  }
+  REQUIRE(io::load_study(dir / "study.resolved.yaml").name == hostile);
+  const bool pwned_before = fs::exists(fs::current_path() / "PWNED");
+
+  const auto out = io::write_report(dir, options());
+  const fs::path rep = dir / "report";
+
+  // Nothing ran: no PWNED in the run directory (gnuplot runs inside it) nor where the test runs.
+  CHECK_FALSE(any_file_named(tmp.path(), "PWNED"));
+  CHECK(fs::exists(fs::current_path() / "PWNED") == pwned_before);
+
+  // The report renders: every figure is drawn.
+  REQUIRE(out.figures.size() == 8);
+  if (have_gnuplot())
+    for (const auto& f : out.figures) {
+      INFO(f.image);
+      CHECK(fs::file_size(rep / f.image) > 1000);
+    }
+
+  // report.md: the name only escaped (markdown_text), the heading on one line; no link, no tag,
+  // no raw backquote around the command.
+  const std::string md = text_of(rep / "report.md");
+  const std::string escaped =
+      "x\\`touch PWNED\\`y @x 'q' \"d\" back\\\\slash line2\\]\\(http\\://e\\)&lt;script&gt;";
+  CHECK(md.rfind("# Report: " + escaped + "\n\nMade by `dobudget report`", 0) == 0);
+  CHECK(contains(md, "Study " + escaped + ", seed 7."));
+  CHECK_FALSE(contains(md, "](http://e)"));
+  CHECK_FALSE(contains(md, "<script>"));
+  CHECK_FALSE(contains(md, "`touch PWNED`"));
+  for (const auto& line : lines_of(md)) CHECK(line.rfind("line2", 0) != 0);
+  // Rendered by a CommonMark (GFM) renderer when one is installed: one h1, no link to http://e, no
+  // HTML tag from the name.
+  if (io::find_program("cmark-gfm")) {
+    const auto rendered = io::run_child(*io::find_program("cmark-gfm"),
+                                        {"-e", "table", "-e", "autolink", "-e", "strikethrough", (rep / "report.md").string()},
+                                        tmp.path());
+    REQUIRE(rendered.exit_code == 0);
+    const std::string html = rendered.output;
+    CHECK_FALSE(contains(html, "<script"));
+    CHECK_FALSE(contains(html, "href=\"http://e"));
+    // The heading shows the name as written (its newline as a space), HTML-escaped by the renderer.
+    const std::string h1 =
+        "<h1>Report: x`touch PWNED`y @x 'q' &quot;d&quot; back\\slash line2](http://e)&lt;script&gt;</h1>\n";
+    REQUIRE(html.find("<h1>") != std::string::npos);
+    CHECK(html.find("<h1>", html.find("<h1>") + 1) == std::string::npos);
+    CHECK(html.rfind(h1, 0) == 0);
+  } else {
+    WARN("cmark-gfm is not installed (Debian: cmark-gfm): report.md is checked as text only");
+  }
+
+  // The scripts: outside single quotes and comments, the only double-quoted strings are the
+  // constants "\n" and "'"; the title is one command line holding the name in single-quoted pieces.
+  for (const auto& f : out.figures) {
+    INFO(f.script);
+    for (const auto& line : lines_of(text_of(rep / f.script))) {
+      INFO(line);
+      bool quoted = false;
+      for (std::size_t i = 0; i < line.size(); ++i) {
+        if (quoted) {
+          quoted = line[i] != '\'';
+        } else if (line[i] == '\'') {
+          quoted = true;
+        } else if (line[i] == '#') {
+          break;
+        } else if (line[i] == '"') {
+          const bool constant = line.compare(i, 4, "\"\\n\"") == 0 || line.compare(i, 3, "\"'\"") == 0;
+          CHECK(constant);
+          i += line.compare(i, 4, "\"\\n\"") == 0 ? 3 : 2;
+        }
+      }
+      CHECK_FALSE(quoted);
+    }
+    bool title_seen = false;
+    for (const auto& line : lines_of(text_of(rep / f.script)))
+      if (line.rfind("set title ", 0) == 0) {
+        title_seen = true;
+        CHECK(contains(line, "'study x`touch PWNED`y @x '.\"'\".'q'.\"'\".' \"d\" back\\slash line2](http://e)<script>"));
+      }
+    CHECK(title_seen);
+  }
+
+  // The .dat files: the title comment is one line (the newline flattened); the data rows are intact.
+  for (const auto& f : out.figures) {
+    INFO(f.data);
+    const auto lines = lines_of(text_of(rep / f.data));
+    REQUIRE_FALSE(lines.empty());
+    CHECK(lines[0].rfind("# dobudget report data:", 0) == 0);
+    CHECK(contains(lines[0], "back\\slash line2](http://e)<script>"));
+    for (const auto& line : lines) CHECK((line.empty() || line.front() == '#' || std::isalpha(static_cast<unsigned char>(line.front()))));
+    CHECK(data_lines(rep / f.data).size() == 27);
+  }
+  // A newline or CR in the title cannot end the comment line (pandas takes CR as a line break).
+  const std::string dat = io::summary_dat({}, "study a\nb\rc");
+  CHECK(dat.rfind("# study a b c\n# ", 0) == 0);
 }

@@ -11,8 +11,12 @@
 #include <filesystem>
 #include <fstream>
 #include <functional>
+#include <regex>
+#include <sstream>
 #include <string>
 #include <vector>
+
+#include <fmt/format.h>
 
 #include "io/input_error.hpp"
 #include "io/model_file.hpp"
@@ -172,8 +176,34 @@ const std::string full_study =
 
 }  // namespace
 
-TEST_CASE("an empty study is the example study, every default filled in", "[study_file]") {
-  for (const std::string text : {"", "# nothing but a comment\n", "logging:\nfit:\n"}) {
+// Hardening: an empty file is far more likely truncated than a request for every default.
+TEST_CASE("a file with no study in it is refused, not run as the example study", "[study_file][hardening]") {
+  for (const std::string text : {"", "# nothing but a comment\n", "---\n", "---\n# comment\n...\n", "\n\n"}) {
+    INFO("text: " << text);
+    const InputError e = parse_error(text);
+    CHECK(e.file == "bad.yaml");
+    CHECK(e.message.find("holds no study") != std::string::npos);
+  }
+}
+
+// Hardening: names are shown on pages and in figure titles and give the default run directory.
+TEST_CASE("a study name with control characters, bad UTF-8 or excessive length is refused", "[study_file][hardening]") {
+  check_error("name: \"two\\nlines\"\n", 1, "name", "control characters");
+  check_error("name: \"tab\\there\"\n", 1, "name", "control characters");
+  check_error("name: \"esc\\e[31m\"\n", 1, "name", "control characters");
+  check_error("name: \"" + std::string(201, 'x') + "\"\n", 1, "name", "at most 200 bytes");
+  // Invalid UTF-8 (RFC 3629, sec. 3): a lone continuation byte, an overlong form, a surrogate.
+  for (const std::string bad : {"a\x80z", "\xc0\xafz", "\xed\xa0\x80"}) check_error("name: " + bad + "\n", 1, "name", "UTF-8");
+  // Allowed: punctuation, spaces, paths-looking text (a name never becomes a path) and UTF-8.
+  for (const std::string& ok : std::vector<std::string>{"Orchard irrigation (2026)", "../../escaped", "/etc/passwd", "x`touch PWNED`y",
+                               "Gew\xc3\xa4" "chshaus \xe2\x80\x94 pilot", std::string(200, 'y')}) {
+    INFO(ok);
+    CHECK(parse("name: \"" + ok + "\"\n").name == ok);
+  }
+}
+
+TEST_CASE("a study of empty sections is the example study, every default filled in", "[study_file]") {
+  for (const std::string text : {"name: example\n", "logging:\nfit:\n"}) {
     const Study s = parse(text);
     CHECK(s.name == "example");
     CHECK(s.seed == 1);
@@ -319,9 +349,11 @@ TEST_CASE("sizes must be at least 1", "[study_file]") {
       {"environment", "states"},        {"environment", "actions"}, {"environment", "observations"},
       {"environment", "horizon"},       {"environment", "draws"},   {"fit", "latent_states"},
       {"fit", "restarts"},              {"fit", "max_iterations"},  {"evaluation", "trajectories"},
-      {"planner", "belief_points"},     {"planner", "rollouts"}};
+      {"planner", "belief_points"}};
   for (const auto& [section, key] : sizes)
     check_error("name: x\n" + section + ":\n  " + key + ": 0\n", 3, section + "." + key, "must be at least 1, got 0");
+  // Rollouts give a standard error: at least 2 (1 was accepted and failed as an internal error).
+  check_error("name: x\nplanner:\n  rollouts: 0\n", 3, "planner.rollouts", "must be at least 2, got 0");
   check_error("replicates: 0\n", 1, "replicates", "must be at least 1, got 0");
   check_error("planner:\n  exact_histories: -1\n", 2, "planner.exact_histories", "must be at least 0, got -1");
 }
@@ -352,7 +384,7 @@ TEST_CASE("probabilities and ranges", "[study_file]") {
       {"environment", "dynamics_concentration", "0", "must be greater than 0, got 0"},
       {"environment", "discount", "0", "must be in (0, 1], got 0"},
       {"environment", "discount", "1.5", "must be in (0, 1], got 1.5"},
-      {"fit", "prior", "-1", "must be at least 0, got -1"},
+      {"fit", "prior", "-1", "must be in [0, 1e100], got -1"},
       {"fit", "tolerance", "0", "must be greater than 0, got 0"},
       {"targets", "model_kl", "0", "must be greater than 0, got 0"},
       {"targets", "model_kl", "-0.01", "must be greater than 0, got -0.01"},
@@ -525,7 +557,7 @@ TEST_CASE("sweep errors name the sweep entry", "[study_file]") {
 }
 
 TEST_CASE("resolved_yaml round-trips the study", "[study_file]") {
-  SECTION("defaults") { check_round_trip(parse("")); }
+  SECTION("defaults") { check_round_trip(parse("name: example\n")); }
   SECTION("every key given") { check_round_trip(parse(full_study)); }
   SECTION("odd values") {
     check_round_trip(parse(
@@ -581,4 +613,107 @@ TEST_CASE("inline model errors are located in the study", "[study_file]") {
   check_error("environment:\n  model:\n    states: 2\n    actions: 1\n    observations: 1\n    initial: [0.5, 0.4]\n",
               6, "environment.model.initial", "entries sum to 0.9");
   check_error("environment:\n  model: 3\n", 2, "environment.model", "expected a model");
+}
+
+// Hardening: values the computation cannot hold are refused while the study is read, with the
+// key named (InputError), before any scenario is built.
+TEST_CASE("study limits: every bounded key refuses the first value above its limit", "[study_file][limits]") {
+  struct Case {
+    std::string text;
+    std::string key;
+    std::string fragment;
+  };
+  const std::vector<Case> cases{
+      {"environment: { states: 201 }", "environment.states", "must be at most 200"},
+      {"environment: { states: 100000 }", "environment.states", "must be at most 200"},
+      {"environment: { actions: 201 }", "environment.actions", "must be at most 200"},
+      {"environment: { observations: 100000000 }", "environment.observations", "must be at most 200"},
+      {"environment: { observations: 1e8 }", "environment.observations", "must be at most 200"},
+      {"environment: { horizon: 10001 }", "environment.horizon", "must be at most 10000"},
+      {"environment: { horizon: 2147483647 }", "environment.horizon", "must be at most 10000"},
+      {"environment: { draws: 100001 }", "environment.draws", "must be at most 100000"},
+      {"replicates: 100001", "replicates", "must be at most 100000"},
+      {"budgets: { pilot: [5, 2147483647] }", "budgets.pilot[1]", "must be at most 10000000 episodes"},
+      {"budgets: { logged: [0, 10000001] }", "budgets.logged[1]", "must be at most 10000000 episodes"},
+      {"fit: { latent_states: 201 }", "fit.latent_states", "must be at most 200"},
+      {"fit: { restarts: 1001 }", "fit.restarts", "must be at most 1000"},
+      {"fit: { max_iterations: 1000001 }", "fit.max_iterations", "must be at most 1000000"},
+      {"fit: { prior: 1e101 }", "fit.prior", "must be in [0, 1e100]"},
+      {"evaluation: { trajectories: 10000001 }", "evaluation.trajectories", "must be at most 10000000"},
+      {"planner: { belief_points: 10001 }", "planner.belief_points", "must be at most 10000"},
+      {"planner: { exact_histories: 1000000001 }", "planner.exact_histories", "must be at most 1000000000"},
+      {"planner: { rollouts: 10000001 }", "planner.rollouts", "must be at most 10000000"},
+      {"planner: { rollouts: 1 }", "planner.rollouts", "must be at least 2"},  // a standard error needs 2
+      {"sweep: { environment.horizon: [8, 20000] }", "sweep.environment.horizon[1]", "must be at most 10000"},
+  };
+  for (const Case& c : cases) {
+    const std::string text = "name: limits\n" + c.text + "\n";
+    check_error(text, 2, c.key, c.fragment);
+  }
+  // Each limit itself is accepted.
+  const Study ok = parse("name: limits\nenvironment: { states: 200, actions: 200, observations: 200, horizon: 10000,"
+                         " draws: 100 }\nbudgets: { pilot: [1, 10000000], logged: [0, 10000000] }\nreplicates: 100000\n"
+                         "fit: { restarts: 1000, max_iterations: 1000000, prior: 1e100 }\n"
+                         "evaluation: { trajectories: 10000000 }\n"
+                         "planner: { belief_points: 10000, exact_histories: 1000000000, rollouts: 10000000 }\n");
+  CHECK(ok.scenarios.front().settings.environment.horizon == 10000);
+  CHECK(ok.scenarios.front().settings.pilot_budgets.back() == 10000000);
+}
+
+TEST_CASE("study limits: a sweep whose scenario count overflows is refused before any scenario is built",
+          "[study_file][limits]") {
+  // 16 keys of 16 values: 16^16 = 2^64 scenarios, which a 64-bit count wraps to 0 (before, the
+  // study was "valid" with no scenario). The product is checked as it grows, without overflow.
+  const std::vector<std::string> keys{"logging.privilege",      "logging.temperature", "logging.q_discount",
+                                      "fit.tolerance",          "fit.prior",           "assurance",
+                                      "environment.discount",   "environment.observation_noise",
+                                      "environment.dynamics_concentration",             "fit.restarts",
+                                      "fit.max_iterations",     "replicates",          "evaluation.trajectories",
+                                      "planner.belief_points",  "planner.rollouts",    "planner.seed"};
+  std::string text = "name: wide\nsweep:\n";
+  for (const std::string& k : keys) {
+    text += "  " + k + ": [";
+    for (int v = 1; v <= 16; ++v) {
+      // values valid for every key: 0.01 .. 0.16 for the real-valued ones, 2 .. 17 for whole ones
+      const bool whole = k.rfind("fit.restarts", 0) == 0 || k == "fit.max_iterations" || k == "replicates" ||
+                         k.rfind("evaluation", 0) == 0 || k.rfind("planner", 0) == 0;
+      text += (v > 1 ? ", " : "") + (whole ? std::to_string(v + 1) : fmt::format("{}", v / 100.0));
+    }
+    text += "]\n";
+  }
+  const InputError e = parse_error(text);
+  INFO(e.what());
+  CHECK(e.key == "sweep");
+  CHECK(e.line == 3);  // the sweep mapping starts on its first key's line
+  CHECK_THAT(e.message, Catch::Contains("more than 10000 scenarios"));
+  // 4 keys of 10 values (10^4 scenarios) are still a study.
+  std::string small = "name: ok\nfit: { max_iterations: 2 }\nsweep:\n";
+  for (const char* k : {"logging.privilege", "logging.temperature", "fit.tolerance", "assurance"}) {
+    small += std::string("  ") + k + ": [";
+    for (int v = 1; v <= 10; ++v) small += (v > 1 ? ", " : "") + fmt::format("{}", v / 100.0);
+    small += "]\n";
+  }
+  CHECK(parse(small).scenarios.size() == 10000);
+}
+
+TEST_CASE("study limits: more than 10^7 units are refused at the key that passes the limit", "[study_file][limits]") {
+  // draws and replicates are each within their limits; their product is not (computed in 64 bits).
+  check_error("name: many\nenvironment: { draws: 100000 }\nreplicates: 101\n", 3, "replicates",
+              "makes more than 10000000 units");
+  CHECK(parse("name: many\nenvironment: { draws: 100000 }\nreplicates: 100\n").scenarios.size() == 1);
+  // Across scenarios: 2 scenarios of 10^7 / 2 + 1 units each.
+  const InputError e = parse_error("name: many\nenvironment: { draws: 50001 }\nreplicates: 100\nsweep: { fit.prior: [0.1, 0.2] }\n");
+  CHECK(e.key == "replicates");
+  CHECK_THAT(e.message, Catch::Contains("2 scenarios"));
+}
+
+TEST_CASE("study limits: an inline model with a reward of 1e308 is refused, located in the study",
+          "[study_file][limits]") {
+  std::string inline_model;
+  std::istringstream lines(model_text);
+  for (std::string line; std::getline(lines, line);) inline_model += "    " + line + "\n";
+  const std::string text = "name: huge-reward\nenvironment:\n  model:\n" + inline_model;
+  const std::string bad = std::regex_replace(text, std::regex("rewards: \\[0, 0.5, 1\\]"), "rewards: [0, 1e308, 1]");
+  REQUIRE(bad != text);
+  check_error(bad, 16, "environment.model.rewards[1]", "must be at most 1e+100 in absolute value");
 }

@@ -1,0 +1,118 @@
+#include "io/finished_run.hpp"
+
+#include <fmt/format.h>
+#include <nlohmann/json.hpp>
+
+#include <fstream>
+
+#include "core/unit.hpp"
+#include "io/atomic_file.hpp"
+#include "io/expected_rows.hpp"
+#include "io/input_error.hpp"
+#include "io/journal.hpp"
+#include "io/run_directory.hpp"
+#include "io/runs_table.hpp"
+#include "io/study_file.hpp"
+
+namespace dobudget::io {
+namespace {
+
+namespace fs = std::filesystem;
+
+// A runs.csv row is at most a few hundred bytes (six keys, three numbers of at most 24 characters,
+// a short note); a file far larger than the study's rows can fill is refused before it is read.
+constexpr std::uintmax_t max_row_bytes = 1024;
+
+std::string read_input(const fs::path& file) {
+  try {
+    return read_file(file);
+  } catch (const std::runtime_error&) {
+    throw InputError(file.string(), 0, "", "cannot be read");
+  }
+}
+
+// The first line of a file (at most 200 bytes of it), without reading the rest.
+std::string first_line(const fs::path& file) {
+  std::ifstream in(file, std::ios::binary);
+  std::string line(200, '\0');
+  in.read(line.data(), static_cast<std::streamsize>(line.size()));
+  line.resize(static_cast<std::size_t>(in.gcount()));
+  return line.substr(0, line.find('\n'));
+}
+
+}  // namespace
+
+void check_recorded_study_hash(const fs::path& dir, const std::string& resolved) {
+  const std::string hash = study_hash(resolved);
+  const fs::path resolved_file = dir / "study.resolved.yaml";
+  const auto edited = [&](const fs::path& record, const std::string& recorded) {
+    return InputError(resolved_file.string(), 0, "",
+                      fmt::format("has study hash {}, but {} records study hash {} from planning: the file was edited "
+                                  "after the run; restore it, or plan the edited study into a fresh --out directory",
+                                  hash, record.filename().string(), recorded));
+  };
+  const fs::path manifest = dir / "manifest.json";
+  const bool has_manifest = fs::exists(manifest);
+  if (has_manifest) {
+    nlohmann::json j;
+    try {
+      j = nlohmann::json::parse(read_input(manifest));
+    } catch (const nlohmann::json::exception&) {
+      throw InputError(manifest.string(), 0, "", "is not valid JSON; it was damaged");
+    }
+    if (!j.is_object() || !j.contains("study_hash") || !j["study_hash"].is_string())
+      throw InputError(manifest.string(), 0, "study_hash",
+                       "missing; this manifest.json was not written by dobudget plan or merge");
+    const std::string recorded = j["study_hash"].get<std::string>();
+    if (recorded != hash) throw edited(manifest, recorded.substr(0, 40));
+  }
+  const fs::path journal = dir / "units.journal";
+  if (fs::exists(journal)) {
+    const std::string line = first_line(journal);
+    const std::string prefix = Journal::header("");  // "dobudget-journal 2 study \n"
+    const std::string stem = prefix.substr(0, prefix.size() - 1);
+    // Journals of format 1 (no header) record no hash; a format-2 header must name this study.
+    if (line.compare(0, stem.size(), stem) == 0 && line.substr(stem.size()) != hash) {
+      const std::string recorded = line.substr(stem.size(), 40);
+      if (!has_manifest) throw edited(journal, recorded);
+      // study.resolved.yaml agrees with manifest.json: the journal is the odd one out.
+      throw InputError(journal.string(), 1, "",
+                       fmt::format("belongs to another study (its header names study hash {}; study.resolved.yaml "
+                                   "and manifest.json beside it have {})",
+                                   recorded, hash));
+    }
+  }
+}
+
+FinishedRun load_finished_run(const fs::path& dir) {
+  FinishedRun run;
+  run.dir = dir;
+  const fs::path resolved_file = dir / "study.resolved.yaml", runs_file = dir / "runs.csv";
+  if (!fs::is_directory(dir))
+    throw InputError(dir.string(), 0, "", "is not a directory (expected a dobudget run directory)");
+  if (!fs::exists(resolved_file))
+    throw InputError(dir.string(), 0, "", "is not a dobudget run directory (no study.resolved.yaml)");
+  if (!fs::exists(runs_file))
+    throw InputError(dir.string(), 0, "",
+                     "has no runs.csv yet: finish the run with `dobudget plan` (or `merge` its shards) first");
+  run.resolved_yaml = read_input(resolved_file);
+  check_recorded_study_hash(dir, run.resolved_yaml);
+  run.study = load_study(resolved_file);
+
+  std::uintmax_t rows = 0;
+  for (const UnitId& u : enumerate_units(run.study))
+    rows += rows_per_unit(run.study.scenarios[static_cast<std::size_t>(u.scenario)].settings);
+  std::error_code ec;
+  const std::uintmax_t size = fs::file_size(runs_file, ec);
+  if (!ec && size > (rows + 1) * max_row_bytes)
+    throw InputError(runs_file.string(), 0, "",
+                     fmt::format("is {} bytes, far more than the study's {} rows can fill; it is not this study's "
+                                 "runs.csv",
+                                 size, rows));
+  run.rows = parse_runs(read_input(runs_file), runs_file.string());
+  check_rows_against_study(run.study, run.rows, runs_file.string());
+  if (fs::exists(dir / "timings.csv")) read_fit_seconds(dir / "timings.csv", run.rows);
+  return run;
+}
+
+}  // namespace dobudget::io

@@ -1,0 +1,35 @@
+// A finished run directory, loaded for re-analysis (`answer`, `report`) with every check a file
+// that travelled between people needs (design.md sec. 6, 7):
+//   1. study.resolved.yaml has the study hash recorded at planning time: manifest.json's
+//      study_hash and units.journal's header, whichever are present (an edited copy is refused);
+//   2. it loads as a study (load_study: located errors);
+//   3. runs.csv parses cell by cell (parse_runs: type and range of every cell) and holds exactly
+//      the study's rows, each once, in order, with the measures the study takes
+//      (check_rows_against_study).
+// Every problem is an InputError naming the file, and the line and column where there is one:
+//   runs/x/runs.csv:14: model_kl: must be at least 0, got -0.3
+#pragma once
+#include <filesystem>
+#include <string>
+#include <vector>
+
+#include "core/run_record.hpp"
+#include "core/settings.hpp"
+
+namespace dobudget::io {
+
+struct FinishedRun {
+  std::filesystem::path dir;
+  Study study;
+  std::string resolved_yaml;    // the bytes of study.resolved.yaml
+  std::vector<RunRecord> rows;  // runs.csv (fit_seconds from timings.csv), canonical order
+};
+
+// Loads and checks the run directory `dir` (see above). Throws InputError.
+FinishedRun load_finished_run(const std::filesystem::path& dir);
+
+// Checks that study.resolved.yaml's bytes have the study hash that `dir`'s manifest.json and
+// units.journal header record (those present). Throws InputError naming the file that disagrees.
+void check_recorded_study_hash(const std::filesystem::path& dir, const std::string& resolved_yaml);
+
+}  // namespace dobudget::io
