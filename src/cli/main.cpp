@@ -43,9 +43,11 @@ int main(int argc, char** argv) {
   PlanArgs plan_args;
   auto* plan = app.add_subcommand("plan", "Simulate the study, write the run directory and print the results");
   plan->add_option("study", plan_args.study, "Study file (YAML)")->required();
-  plan->add_option("--out", plan_args.out, "Run directory (default: runs/<study name>); rerun on it to resume");
+  plan->add_option("--out", plan_args.out, "Run directory (default: runs/<study name>); rerun on it to resume")
+      ->type_name("DIR");
   plan->add_option("--threads", plan_args.threads, "Worker threads, 1 to 1024 (default: all cores)")->type_name("N");
-  plan->add_option("--shard", plan_args.shard, "Compute only shard K of N (K = 0..N-1, as job-array indices run)");
+  plan->add_option("--shard", plan_args.shard, "Compute only shard K of N (K = 0..N-1, as job-array indices run)")
+      ->type_name("K/N");
   plan->add_option("--max-core-hours", plan_args.max_core_hours,
                    "Refuse to start when the estimated cost is above H core-hours (default 1000)")
       ->type_name("H");
