@@ -9,7 +9,8 @@
 #include "core/cost_estimate.hpp"
 #include "core/memory_estimate.hpp"
 #include "core/unit.hpp"
-#include "io/input_error.hpp"
+#include "io/machine_memory.hpp"
+#include "io/memory_messages.hpp"
 #include "io/study_file.hpp"
 
 namespace dobudget::cli {
@@ -18,17 +19,13 @@ namespace {
 // The calibration runs one fit per scenario; skipped when its own cost bound is above this.
 constexpr double max_calibration_seconds = 60.0;
 
-// The first key of a comma-separated list ("budgets.pilot, budgets.logged" -> "budgets.pilot").
-std::string first_key(const std::string& keys) { return keys.substr(0, keys.find(',')); }
-
 }  // namespace
 
 int check_command(const std::string& study_file) {
   const Study study = io::load_study(study_file);
   const int threads = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
   const MemoryEstimate memory = estimate_memory(study, threads);
-  if (const std::string refusal = memory_refusal(memory, physical_memory_bytes()); !refusal.empty())
-    throw io::InputError(study_file, 0, first_key(memory.largest().keys), refusal);
+  io::refuse_memory_beyond(memory, io::machine_memory(), study_file);
 
   std::printf("%s", io::resolved_yaml(study).c_str());
   const std::vector<UnitId> units = enumerate_units(study);
@@ -37,10 +34,11 @@ int check_command(const std::string& study_file) {
     fits += fits_per_unit(study.scenarios[static_cast<std::size_t>(u.scenario)].settings);
   std::printf("# valid study: %zu scenario(s), %zu units, %lld model fits\n", study.scenarios.size(), units.size(), fits);
   std::printf("# estimated peak memory: %s with %d unit(s) at once (one unit of scenario %d: %s;", 
-              format_bytes(memory.peak_bytes).c_str(), memory.concurrent_units, memory.scenario,
-              format_bytes(memory.unit_bytes).c_str());
-  for (const MemoryPart& p : memory.unit_parts) std::printf(" %s %s,", p.what.c_str(), format_bytes(p.bytes).c_str());
-  std::printf(" %s %s)\n", memory.results.what.c_str(), format_bytes(memory.results.bytes).c_str());
+              io::format_bytes(memory.peak_bytes).c_str(), memory.concurrent_units, memory.scenario,
+              io::format_bytes(memory.unit_bytes).c_str());
+  for (const MemoryPart& p : memory.unit_parts)
+    std::printf(" %s %s,", io::memory_part_name(p.id).c_str(), io::format_bytes(p.bytes).c_str());
+  std::printf(" %s %s)\n", io::memory_part_name(memory.results.id).c_str(), io::format_bytes(memory.results.bytes).c_str());
   const CostBound bound = bound_cost(study, units);
   std::printf("# cost from counts (what `plan` states and limits): about %.3g core-hours, at most %.3g\n",
               bound.core_seconds / 3600.0, bound.max_core_seconds / 3600.0);

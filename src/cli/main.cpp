@@ -6,6 +6,7 @@
 
 #include "cli/commands.hpp"
 #include "io/input_error.hpp"
+#include "io/text_escape.hpp"
 
 namespace dobudget::cli {
 
@@ -89,6 +90,8 @@ int main(int argc, char** argv) {
   } catch (const CLI::ParseError& e) {
     return app.exit(e) == 0 ? 0 : 2;
   }
+  // Messages can quote user text (a key, a value, a file name): printable_text keeps their line
+  // breaks and replaces control characters, so no terminal escape sequence reaches the screen.
   try {
     if (*plan) return plan_command(plan_args);
     if (*check) return check_command(study_file);
@@ -97,16 +100,16 @@ int main(int argc, char** argv) {
     if (*merge) return merge_command(merge_args);
     if (*report) return report_command(report_dir);
   } catch (const io::InputError& e) {
-    std::fprintf(stderr, "error: %s\n", e.what());
+    std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());
     return 2;
   } catch (const BadInput& e) {
-    std::fprintf(stderr, "error: %s\n", e.what());
+    std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());
     return 2;
   } catch (const std::runtime_error& e) {
-    std::fprintf(stderr, "error: %s\n", e.what());
+    std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());
     return 2;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "internal error: %s\n", e.what());
+    std::fprintf(stderr, "internal error: %s\n", io::printable_text(e.what()).c_str());
     return 1;
   }
   return 0;

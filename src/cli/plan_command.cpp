@@ -10,6 +10,7 @@
 #include <csignal>
 #include <cstdio>
 #include <exception>
+#include <filesystem>
 #include <optional>
 #include <thread>
 
@@ -21,7 +22,8 @@
 #include "core/unit.hpp"
 #include "io/answer_table.hpp"
 #include "io/file_name.hpp"
-#include "io/input_error.hpp"
+#include "io/machine_memory.hpp"
+#include "io/memory_messages.hpp"
 #include "io/run_directory.hpp"
 #include "io/study_file.hpp"
 #include "io/summary_table.hpp"
@@ -92,34 +94,55 @@ io::PlanOptions plan_options(const PlanArgs& args, const Study& study, int defau
 // below the runaway studies a mistyped budget or sweep makes (millions of core-hours).
 constexpr double default_max_core_hours = 1000.0;
 
-// Before anything is written: states the estimated cost of the units this run computes (on
-// stderr, unless quiet), and refuses (exit 2) a run whose estimate is above --max-core-hours or
-// whose estimated peak memory is above this machine's (memory_estimate.hpp).
-void check_what_it_takes(const PlanArgs& args, const Study& study, const io::PlanOptions& opt, bool print) {
-  double limit = default_max_core_hours;
-  if (!args.max_core_hours.empty()) {
-    limit = number_option("--max-core-hours", args.max_core_hours);
-    if (!(limit > 0.0))
-      throw BadInput("--max-core-hours: expected a number of core-hours greater than 0, got '" + args.max_core_hours + "'");
-  }
-  const MemoryEstimate memory = estimate_memory(study, opt.threads);
-  if (const std::string refusal = memory_refusal(memory, physical_memory_bytes()); !refusal.empty()) {
-    const std::string keys = memory.largest().keys;
-    throw io::InputError(args.study, 0, keys.substr(0, keys.find(',')), refusal);
-  }
-  const std::vector<UnitId> all = enumerate_units(study);
+// The limit of --max-core-hours (default_max_core_hours when not given).
+double core_hour_limit(const PlanArgs& args) {
+  if (args.max_core_hours.empty()) return default_max_core_hours;
+  const double limit = number_option("--max-core-hours", args.max_core_hours);
+  if (!(limit > 0.0))
+    throw BadInput("--max-core-hours: expected a number of core-hours greater than 0, got '" + args.max_core_hours + "'");
+  return limit;
+}
+
+// States the estimated cost of the units `todo` (indices into `units`) on stderr (when `print`),
+// and refuses (exit 2) a run whose bound, every start of every fit running to fit.max_iterations
+// (cost_estimate.hpp), is above `limit`: the typical estimate alone could be passed by a study
+// that cannot converge (a tolerance of 1e-300 with a huge iteration cap). `resumed`: units of
+// this run already in the journal.
+void check_cost(const Study& study, const std::vector<UnitId>& all, const std::vector<std::size_t>& todo,
+                std::size_t resumed, double limit, bool print) {
   std::vector<UnitId> units;
-  for (std::size_t i : io::shard_units(all.size(), opt.shard.value_or(io::Shard{}))) units.push_back(all[i]);
+  for (std::size_t i : todo) units.push_back(all[i]);
   const CostBound cost = bound_cost(study, units);
   const double hours = cost.core_seconds / 3600.0, most = cost.max_core_seconds / 3600.0;
-  if (hours > limit)
-    throw BadInput(fmt::format("--max-core-hours: the estimated cost of this run, about {:.2g} core-hours (at most "
-                               "{:.2g}), is above the limit of {:.4g} core-hours; check the study (`dobudget check` "
-                               "shows what drives it), or raise the limit, e.g. --max-core-hours {:.2g}",
-                               hours, most, limit, std::max(hours, most) * 1.1));
+  if (most > limit)
+    throw BadInput(fmt::format("--max-core-hours: the estimated cost of this run, about {:.2g} core-hours, could reach "
+                               "{:.2g} core-hours (if every start of every fit runs to fit.max_iterations), which is "
+                               "above the limit of {:.4g} core-hours; check the study (`dobudget check` shows what "
+                               "drives it), or raise the limit, e.g. --max-core-hours {:.2g}",
+                               hours, most, limit, most * 1.1));
   if (print)
-    std::fprintf(stderr, "estimated cost: about %.2g core-hours (at most %.2g) for %zu units; limit %.4g (--max-core-hours)\n",
-                 hours, most, units.size(), limit);
+    std::fprintf(stderr, "estimated cost: about %.2g core-hours (at most %.2g) for %zu units%s; limit %.4g (--max-core-hours)\n",
+                 hours, most, units.size(),
+                 resumed ? fmt::format(" still to do ({} finished before)", resumed).c_str() : "", limit);
+}
+
+// Before anything is written: refuses (exit 2) a run whose estimated peak memory is above what
+// this process may use (memory_estimate.hpp, machine_memory.hpp); for a new (or empty) run
+// directory, states and limits the cost of every unit of the run (check_cost). For a directory
+// being resumed the cost is that of the units still to do, known once the journal is read: it is
+// stated and limited then, through opt.before_computing, before any unit is computed.
+void check_what_it_takes(const PlanArgs& args, const Study& study, io::PlanOptions& opt, bool print) {
+  const double limit = core_hour_limit(args);
+  io::refuse_memory_beyond(estimate_memory(study, opt.threads), io::machine_memory(), args.study);
+  if (!std::filesystem::exists(opt.out / "study.resolved.yaml")) {
+    const std::vector<UnitId> all = enumerate_units(study);
+    check_cost(study, all, io::shard_units(all.size(), opt.shard.value_or(io::Shard{})), 0, limit, print);
+    return;
+  }
+  opt.before_computing = [&study, limit, print, shard = opt.shard.value_or(io::Shard{})](
+                             const std::vector<UnitId>& all, const std::vector<std::size_t>& todo) {
+    check_cost(study, all, todo, io::shard_units(all.size(), shard).size() - todo.size(), limit, print);
+  };
 }
 
 void catch_interruptions() {
@@ -232,7 +255,7 @@ int plan_command(const PlanArgs& args) {
 #endif
   const Study study = io::load_study(args.study);
   const std::string resolved = io::resolved_yaml(study);
-  const io::PlanOptions opt = plan_options(args, study, default_threads());
+  io::PlanOptions opt = plan_options(args, study, default_threads());
   check_what_it_takes(args, study, opt, !args.quiet);
   catch_interruptions();
   return plan_and_report(study, resolved, opt, args.quiet, 1);

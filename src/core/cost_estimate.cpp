@@ -8,6 +8,7 @@
 #include "core/fit.hpp"
 #include "core/model_kl.hpp"
 #include "core/return_gap.hpp"
+#include "core/scenario_sizes.hpp"
 #include "core/synthetic.hpp"
 #include "core/unit.hpp"
 
@@ -18,21 +19,30 @@ double seconds_since(std::chrono::steady_clock::time_point t0) {
   return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
 }
 
-// Observations seen by all distinct fits of one unit (fits whose data coincide are shared).
+}  // namespace
+
+// The fits of fits_per_unit (unit.hpp), each seeing (pilot + logged) x (H + 1) observations, summed
+// in closed form (P the pilot budgets, L+ the logged budgets above 0, k the listed strategies other
+// than pilot-only):
+//   observations / (H + 1) = [pilot-only fit] x sum(P) + k x (|L+| x sum(P) + |P| x sum(L+)).
 double observations_per_unit(const ScenarioSettings& s) {
-  std::map<std::tuple<int, int, int>, double> fits;  // (strategy, logged, pilot) after sharing
+  double pilot_sum = 0.0, logged_sum = 0.0, logged_count = 0.0, k = 0.0;
+  for (int n : s.pilot_budgets) pilot_sum += n;
+  for (int L : s.logged_budgets)
+    if (L > 0) {
+      logged_sum += L;
+      logged_count += 1.0;
+    }
   for (Strategy st : s.strategies)
-    for (int L : s.logged_budgets)
-      for (int n : s.pilot_budgets) {
-        const bool shared = st == Strategy::pilot_only || L == 0;
-        // In double: n + L in int overflowed for budgets near 2^31 (a negative cost was printed).
-        fits[{shared ? 0 : static_cast<int>(st), shared ? 0 : L, n}] =
-            (static_cast<double>(n) + (shared ? 0.0 : static_cast<double>(L))) * (s.environment.horizon + 1.0);
-      }
-  double total = 0.0;
-  for (const auto& [k, obs] : fits) total += obs;
-  return total;
+    if (st != Strategy::pilot_only) k += 1.0;
+  const bool pilot_only_fit = k < static_cast<double>(s.strategies.size()) ||
+                              logged_count < static_cast<double>(s.logged_budgets.size());
+  const double pilots = static_cast<double>(s.pilot_budgets.size());
+  return ((pilot_only_fit ? pilot_sum : 0.0) + k * (logged_count * pilot_sum + pilots * logged_sum)) *
+         (s.environment.horizon + 1.0);
 }
+
+namespace {
 
 // Rates of bound_cost, measured on the project's 2-core machine (AMD EPYC, 2026-12), Release build:
 //  * em_per_observation_z2 = 1e-9 s: `build/bench_em 60` gives 2.6-2.7 ms per regime-aware E-step
@@ -58,38 +68,17 @@ constexpr double step_seconds = 1.5e-7;
 // E-steps of a typical start: the default study's fits averaged 91 (cap 200; DEVELOPERS.md).
 constexpr double typical_iterations = 100.0;
 
-struct Sizes {
-  double S, A, O, H, Z, T, N, R, X;
-};
-
-Sizes sizes_of(const ScenarioSettings& s) {
-  const EnvironmentSettings& e = s.environment;
-  return {static_cast<double>(e.given ? e.given->model.states : e.family.states),
-          static_cast<double>(e.given ? e.given->model.actions : e.family.actions),
-          static_cast<double>(e.given ? e.given->model.observations : e.family.observations),
-          static_cast<double>(e.horizon),
-          static_cast<double>(s.fit.latent_states),
-          static_cast<double>(s.evaluation.trajectories),
-          static_cast<double>(s.planner.belief_points),
-          static_cast<double>(s.planner.rollouts),
-          static_cast<double>(s.planner.exact_histories)};
-}
-
 // Seconds of planning in a model of K states and evaluating that plan (see the header): the
 // exact walk is tried first (it stops after exact_histories histories), then rollouts.
-double return_gap_seconds(const Sizes& z, double K) {
+double return_gap_seconds(const ScenarioSizes& z, double K) {
   const double planning = 2.0 * z.H * z.A * z.N * (K * K + K * z.O + z.O * z.N * K) * op_seconds;
   const double per_step = step_seconds + (z.N * K + K * K + z.S * z.S) * op_seconds;
   return planning + (z.X + z.R * z.H) * per_step;
 }
 
-bool measured(const ScenarioSettings& s, Measure m) {
-  return std::find(s.measures.begin(), s.measures.end(), m) != s.measures.end();
-}
-
 // Seconds of the measures of one fit.
 double measure_seconds(const ScenarioSettings& s) {
-  const Sizes z = sizes_of(s);
+  const ScenarioSizes z = sizes_of(s);
   double t = 0.0;
   if (measured(s, Measure::model_kl)) t += z.T * (z.H + 1.0) * (z.Z * z.Z + z.Z * z.O + z.Z) * kl_seconds;
   if (measured(s, Measure::return_gap)) t += return_gap_seconds(z, z.Z);
@@ -99,7 +88,7 @@ double measure_seconds(const ScenarioSettings& s) {
 }  // namespace
 
 CostBound bound_fit_cost(const ScenarioSettings& s, double episodes) {
-  const Sizes z = sizes_of(s);
+  const ScenarioSizes z = sizes_of(s);
   const double obs = episodes * (z.H + 1.0);
   const double step = obs * (em_per_observation + em_per_observation_z2 * z.Z * z.Z) + z.A * z.O * z.Z * z.Z * op_seconds;
   const double cap = s.fit.max_iterations, restarts = std::max(1, s.fit.restarts);
@@ -119,9 +108,9 @@ CostBound bound_cost(const Study& study, const std::vector<UnitId>& units) {
     // Fits of one unit: observations summed over distinct fits, as one fit of that many episodes.
     const double episodes = observations_per_unit(s) / (s.environment.horizon + 1.0);
     const CostBound fits = bound_fit_cost(s, episodes);
-    double per_unit_measures = fits_per_unit(s) * measure_seconds(s);
+    double per_unit_measures = static_cast<double>(fits_per_unit(s)) * measure_seconds(s);
     if (measured(s, Measure::return_gap)) {  // the true plan's rollout returns, once per unit
-      const Sizes z = sizes_of(s);
+      const ScenarioSizes z = sizes_of(s);
       per_unit_measures += z.R * z.H * (step_seconds + (z.N * z.S + z.S * z.S) * op_seconds);
     }
     // bound_fit_cost charges the A O Z^2 load once; a unit pays it per fit (negligible beside obs).
@@ -131,7 +120,7 @@ CostBound bound_cost(const Study& study, const std::vector<UnitId>& units) {
   for (const auto& [key, one] : draws) {
     const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(key.first)].settings;
     if (!measured(s, Measure::return_gap)) continue;
-    const Sizes z = sizes_of(s);
+    const ScenarioSizes z = sizes_of(s);
     const double per_draw = return_gap_seconds(z, z.S);
     out.core_seconds += per_draw;
     out.max_core_seconds += per_draw;

@@ -62,4 +62,8 @@ CostBound bound_cost(const Study& study, const std::vector<UnitId>& units);
 // Cost bound of one fit of `episodes` episodes with the scenario's settings (calibration and tests).
 CostBound bound_fit_cost(const ScenarioSettings& s, double episodes);
 
+// Observations (episodes x (H + 1)) seen by all distinct fits of one unit of `s`, in closed form
+// (fits whose data coincide are shared, as fits_per_unit counts them).
+double observations_per_unit(const ScenarioSettings& s);
+
 }  // namespace dobudget

@@ -1,12 +1,10 @@
 // Peak memory of a study's units; see memory_estimate.hpp for the count.
 #include "core/memory_estimate.hpp"
 
-#include <unistd.h>
-
 #include <algorithm>
-#include <cstdio>
 
 #include "core/run_record.hpp"
+#include "core/scenario_sizes.hpp"
 #include "core/unit.hpp"
 
 namespace dobudget {
@@ -19,10 +17,6 @@ double plan_bytes(double K, double H, double N, double A, double O) {
   return 3.0 * H * N * K * double_bytes + (N * (3.0 * K + O + A + N) + K * N) * double_bytes + N * A * O * int_bytes;
 }
 
-bool measures(const ScenarioSettings& s, Measure m) {
-  return std::find(s.measures.begin(), s.measures.end(), m) != s.measures.end();
-}
-
 }  // namespace
 
 double bytes_per_row() {
@@ -32,30 +26,35 @@ double bytes_per_row() {
 }
 
 std::vector<MemoryPart> unit_memory(const ScenarioSettings& s) {
-  const EnvironmentSettings& e = s.environment;
-  const double S = e.given ? e.given->model.states : e.family.states;
-  const double A = e.given ? e.given->model.actions : e.family.actions;
-  const double O = e.given ? e.given->model.observations : e.family.observations;
-  const double H = e.horizon, Z = s.fit.latent_states;
-  const double P = s.pilot_budgets.back(), L = s.logged_budgets.back();
-  const double T = s.evaluation.trajectories, N = s.planner.belief_points, R = s.planner.rollouts;
+  const ScenarioSizes z = sizes_of(s);
+  const double S = z.S, A = z.A, O = z.O, H = z.H, Z = z.Z, P = z.P, L = z.L, T = z.T, N = z.N, R = z.R;
   const double n = Z + A * Z * Z + Z * O + Z * A;  // parameters of one fitted model
-  const double F = fits_per_unit(s);
+  const double F = static_cast<double>(fits_per_unit(s));
+  const double pilots = static_cast<double>(s.pilot_budgets.size()), loggeds = static_cast<double>(s.logged_budgets.size());
+  const double strategies = static_cast<double>(s.strategies.size());
 
   std::vector<MemoryPart> parts;
-  parts.push_back({"datasets", "budgets.pilot, budgets.logged, environment.horizon",
-                   (P + L) * (2.0 * H + 1.0) * int_bytes});
-  if (measures(s, Measure::model_kl))
-    parts.push_back({"evaluation histories", "evaluation.trajectories, environment.horizon, environment.observations",
-                     T * (2.0 * H + 1.0) * int_bytes + 3.0 * T * (H + 1.0) * O * double_bytes});
-  parts.push_back({"model fit", "fit.latent_states, environment.actions, environment.observations",
-                   15.0 * n * double_bytes + 2.0 * A * O * Z * Z * double_bytes + (H + 1.0) * (Z + 1.0) * double_bytes});
-  parts.push_back({"fitted models kept", "fit.latent_states, budgets, strategies", F * n * double_bytes});
-  if (measures(s, Measure::return_gap)) {
-    parts.push_back({"planner (fitted model)", "planner.belief_points, environment.horizon, fit.latent_states",
-                     plan_bytes(Z, H, N, A, O) + 3.0 * R * double_bytes});
-    parts.push_back({"planner (true model)", "planner.belief_points, environment.horizon, environment.states",
-                     plan_bytes(S, H, N, A, O)});
+  parts.push_back({MemoryPartId::datasets, (P + L) * (2.0 * H + 1.0) * int_bytes,
+                   {{Driver::pilot_budget, P}, {Driver::logged_budget, L}, {Driver::horizon, H}}});
+  if (measured(s, Measure::model_kl))
+    parts.push_back({MemoryPartId::evaluation_histories,
+                     T * (2.0 * H + 1.0) * int_bytes + 3.0 * T * (H + 1.0) * O * double_bytes,
+                     {{Driver::trajectories, T}, {Driver::horizon, H}, {Driver::observations, O}}});
+  parts.push_back({MemoryPartId::model_fit,
+                   15.0 * n * double_bytes + 2.0 * A * O * Z * Z * double_bytes + (H + 1.0) * (Z + 1.0) * double_bytes,
+                   {{Driver::latent_states, Z}, {Driver::actions, A}, {Driver::observations, O}, {Driver::horizon, H}}});
+  parts.push_back({MemoryPartId::fitted_models_kept, F * n * double_bytes,
+                   {{Driver::latent_states, Z},
+                    {Driver::pilot_budget_count, pilots},
+                    {Driver::logged_budget_count, loggeds},
+                    {Driver::strategy_count, strategies},
+                    {Driver::actions, A},
+                    {Driver::observations, O}}});
+  if (measured(s, Measure::return_gap)) {
+    parts.push_back({MemoryPartId::planner_fitted, plan_bytes(Z, H, N, A, O) + 3.0 * R * double_bytes,
+                     {{Driver::belief_points, N}, {Driver::horizon, H}, {Driver::latent_states, Z}, {Driver::rollouts, R}}});
+    parts.push_back({MemoryPartId::planner_true, plan_bytes(S, H, N, A, O),
+                     {{Driver::belief_points, N}, {Driver::horizon, H}, {Driver::states, S}}});
   }
   return parts;
 }
@@ -63,18 +62,28 @@ std::vector<MemoryPart> unit_memory(const ScenarioSettings& s) {
 MemoryPart MemoryEstimate::largest() const {
   MemoryPart best = results;
   for (const MemoryPart& p : unit_parts)
-    if (p.bytes * concurrent_units > best.bytes) best = {p.what, p.keys, p.bytes * concurrent_units};
+    if (p.bytes * concurrent_units > best.bytes) {
+      best = p;
+      best.bytes *= concurrent_units;
+    }
   return best;
 }
 
 MemoryEstimate estimate_memory(const Study& study, int threads) {
   MemoryEstimate out;
-  double units = 0.0, rows = 0.0;
+  double units = 0.0, rows = 0.0, draws = 0.0, replicates = 0.0, pilots = 0.0, loggeds = 0.0, strategies = 0.0;
   for (const Scenario& sc : study.scenarios) {
     const ScenarioSettings& s = sc.settings;
-    const double u = static_cast<double>(s.environment.given ? 1 : s.environment.draws) * s.replicates;
+    const double d = s.environment.given ? 1.0 : static_cast<double>(s.environment.draws);
+    const double u = d * s.replicates;
     units += u;
-    rows += u * static_cast<double>(s.strategies.size() * s.logged_budgets.size() * s.pilot_budgets.size());
+    rows += u * static_cast<double>(s.strategies.size()) * static_cast<double>(s.logged_budgets.size()) *
+            static_cast<double>(s.pilot_budgets.size());
+    draws = std::max(draws, d);
+    replicates = std::max(replicates, static_cast<double>(s.replicates));
+    pilots = std::max(pilots, static_cast<double>(s.pilot_budgets.size()));
+    loggeds = std::max(loggeds, static_cast<double>(s.logged_budgets.size()));
+    strategies = std::max(strategies, static_cast<double>(s.strategies.size()));
     std::vector<MemoryPart> parts = unit_memory(s);
     double total = 0.0;
     for (const MemoryPart& p : parts) total += p.bytes;
@@ -85,37 +94,16 @@ MemoryEstimate estimate_memory(const Study& study, int threads) {
     }
   }
   out.concurrent_units = static_cast<int>(std::max(1.0, std::min<double>(std::max(1, threads), units)));
-  out.results = {"results kept until the tables are written", "replicates, environment.draws, sweep, budgets, strategies",
-                 rows * bytes_per_row()};
+  out.results = {MemoryPartId::results,
+                 rows * bytes_per_row(),
+                 {{Driver::scenarios, static_cast<double>(study.scenarios.size())},
+                  {Driver::draws, draws},
+                  {Driver::replicates, replicates},
+                  {Driver::strategy_count, strategies},
+                  {Driver::logged_budget_count, loggeds},
+                  {Driver::pilot_budget_count, pilots}}};
   out.peak_bytes = out.concurrent_units * out.unit_bytes + out.results.bytes;
   return out;
-}
-
-std::string format_bytes(double b) {
-  const char* unit[] = {"bytes", "kB", "MB", "GB", "TB", "PB", "EB"};
-  int k = 0;
-  while (b >= 1000.0 && k < 6) {
-    b /= 1000.0;
-    ++k;
-  }
-  char buf[64];
-  std::snprintf(buf, sizeof buf, k == 0 ? "%.0f %s" : "%.3g %s", b, unit[k]);
-  return buf;
-}
-
-std::string memory_refusal(const MemoryEstimate& m, double available) {
-  if (available <= 0.0 || m.peak_bytes <= available) return {};
-  const MemoryPart big = m.largest();
-  return "the estimated peak memory, " + format_bytes(m.peak_bytes) + " (" + std::to_string(m.concurrent_units) +
-         " unit(s) at once), is more than this machine's " + format_bytes(available) + "; the largest part is " +
-         big.what + ", " + format_bytes(big.bytes) + ", driven by " + big.keys +
-         ": lower them (or use fewer threads; `dobudget check` shows every part)";
-}
-
-double physical_memory_bytes() {
-  const long pages = ::sysconf(_SC_PHYS_PAGES), page = ::sysconf(_SC_PAGE_SIZE);
-  if (pages <= 0 || page <= 0) return 0.0;
-  return static_cast<double>(pages) * static_cast<double>(page);
 }
 
 }  // namespace dobudget

@@ -1,6 +1,8 @@
 // Peak memory of `dobudget plan`, estimated from the settings before anything is allocated, so
 // that `check` can print it and `check` and `plan` can refuse a study the machine cannot hold
-// (naming the keys that drive it) instead of failing after allocating gigabytes.
+// instead of failing after allocating gigabytes. The core gives parts and the settings they grow
+// with (ids and numbers); naming them for the user (study keys, messages) and the memory this
+// process may use are src/io's (memory_messages.hpp, machine_memory.hpp).
 //
 // One unit holds at its peak (bytes; P, L the largest pilot and logged budgets, H the horizon,
 // S, A, O the environment's sizes, Z = fit.latent_states, T = evaluation.trajectories,
@@ -25,19 +27,55 @@
 // finished unit keeps until the tables are written (units x F' rows x bytes_per_row, F' the rows of
 // a unit: strategies x logged budgets x pilot budgets; held in the journal and in the result).
 // Terms below a few kilobytes (environment, belief filters) are counted only where they scale.
+// Every count is a double (no overflow), and nothing is enumerated: the estimate of a study that
+// is refused allocates nothing sized by it.
 #pragma once
-#include <cstdint>
-#include <string>
 #include <vector>
 
 #include "core/settings.hpp"
 
 namespace dobudget {
 
+// The parts of the table above.
+enum class MemoryPartId {
+  datasets,
+  evaluation_histories,
+  model_fit,
+  fitted_models_kept,
+  planner_fitted,
+  planner_true,
+  results,  // rows kept until the tables are written
+};
+
+// A setting a part grows with (its value is given with it).
+enum class Driver {
+  pilot_budget,         // the largest pilot budget, P
+  logged_budget,        // the largest logged budget, L
+  horizon,              // H
+  states,               // S
+  actions,              // A
+  observations,         // O
+  latent_states,        // Z
+  trajectories,         // T
+  belief_points,        // N
+  rollouts,             // R
+  pilot_budget_count,   // how many pilot budgets are listed
+  logged_budget_count,  // how many logged budgets are listed
+  strategy_count,       // how many strategies are listed
+  scenarios,            // how many scenarios the sweep makes
+  draws,                // environment draws (the largest of any scenario)
+  replicates,           // replicates (the largest of any scenario)
+};
+
+struct DriverValue {
+  Driver driver;
+  double value = 0.0;
+};
+
 struct MemoryPart {
-  std::string what;  // e.g. "datasets"
-  std::string keys;  // the study keys that drive it, e.g. "budgets.pilot, budgets.logged, environment.horizon"
+  MemoryPartId id = MemoryPartId::datasets;
   double bytes = 0.0;
+  std::vector<DriverValue> drivers;  // the settings of the formula above, in its order
 };
 
 struct MemoryEstimate {
@@ -58,15 +96,5 @@ double bytes_per_row();
 std::vector<MemoryPart> unit_memory(const ScenarioSettings& s);
 
 MemoryEstimate estimate_memory(const Study& study, int threads);
-
-// Physical memory of this machine (sysconf pages x page size); 0 when it cannot be told.
-double physical_memory_bytes();
-
-// "1.5 GB", "320 MB", "12 kB" (decimal units).
-std::string format_bytes(double bytes);
-
-// Empty when `estimate` fits in `available` bytes (or available is 0: unknown); otherwise the
-// refusal: the estimate, the machine's memory, the largest part and the keys that drive it.
-std::string memory_refusal(const MemoryEstimate& estimate, double available);
 
 }  // namespace dobudget

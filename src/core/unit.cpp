@@ -1,5 +1,6 @@
 #include "core/unit.hpp"
 
+#include <algorithm>
 #include <chrono>
 #include <map>
 #include <tuple>
@@ -39,12 +40,17 @@ FitKey fit_key(Strategy s, int logged, int pilot) {
 
 }  // namespace
 
-int fits_per_unit(const ScenarioSettings& s) {
-  std::map<FitKey, int> keys;
-  for (Strategy st : s.strategies)
-    for (int L : s.logged_budgets)
-      for (int n : s.pilot_budgets) keys[fit_key(st, L, n)] = 1;
-  return static_cast<int>(keys.size());
+// The distinct fit_key()s of a unit, counted (see the header): the pilot-only fit at each pilot
+// budget when some cell maps to it, and one fit per (other strategy, logged budget > 0, pilot budget).
+long long fits_per_unit(const ScenarioSettings& s) {
+  const auto P = static_cast<long long>(s.pilot_budgets.size());
+  const auto k = static_cast<long long>(
+      std::count_if(s.strategies.begin(), s.strategies.end(), [](Strategy st) { return st != Strategy::pilot_only; }));
+  const auto logged = static_cast<long long>(
+      std::count_if(s.logged_budgets.begin(), s.logged_budgets.end(), [](int L) { return L > 0; }));
+  const bool pilot_only_fit = k < static_cast<long long>(s.strategies.size()) ||
+                              logged < static_cast<long long>(s.logged_budgets.size());
+  return P * ((pilot_only_fit ? 1 : 0) + k * logged);
 }
 
 DrawContext make_draw_context(const Study& study, int scenario, int draw, const StopToken& stop) {

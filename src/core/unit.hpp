@@ -25,8 +25,11 @@ struct UnitId {
 std::vector<UnitId> enumerate_units(const Study& study);
 
 // Number of model fits a unit performs (fits whose data coincide are shared: pilot-only ignores
-// logged data, and with no logged episodes every strategy is the pilot-only fit).
-int fits_per_unit(const ScenarioSettings& s);
+// logged data, and with no logged episodes every strategy is the pilot-only fit). In closed form,
+// without enumerating the cells (P pilot budgets, k listed strategies other than pilot-only,
+// L+ logged budgets above 0):
+//   fits = P x ([pilot-only is listed or 0 is a logged budget] + k x L+).
+long long fits_per_unit(const ScenarioSettings& s);
 
 struct ReturnGapReference;  // return_gap.hpp
 

@@ -106,7 +106,7 @@ void write_answer_csv(const std::filesystem::path& path, const std::vector<Answe
 
 std::string format_answer_md(const std::string& study_name, const std::vector<std::string>& scenario_labels,
                              const std::vector<AnswerRow>& rows) {
-  // The study name and the labels are user text: markdown_text / markdown_cell (text_escape.hpp).
+  // The study name and the labels are user text: markdown_text (text_escape.hpp).
   std::string s = fmt::format("# Pilot episodes needed: {}\n\n", markdown_text(study_name));
   s +=
       "How many pilot (interventional) episodes each way of using the data needs so that the fitted model "
@@ -164,7 +164,7 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
       s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.measure), r.target,
                        r.criterion == Criterion::mean ? std::string("mean") : "assurance " + percent(r.assurance),
                        name(r.strategy), r.logged, human_needed(r), human_interval(r), name(r.status),
-                       sc < scenario_labels.size() ? markdown_cell(scenario_labels[sc]) : std::to_string(r.scenario));
+                       sc < scenario_labels.size() ? markdown_text(scenario_labels[sc]) : std::to_string(r.scenario));
     }
   }
 

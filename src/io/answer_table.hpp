@@ -8,7 +8,7 @@
 // or NaN: e.g. the assurance under the mean criterion, needed_pilot when not-reached, the
 // interval without bootstrap) as empty cells. No quoting is needed: no field contains a comma, and
 // no field holds user text (scenarios are given by index; measure, strategy, status and criterion
-// are the program's own names). A text column added later goes through csv_field (text_escape.hpp).
+// are the program's own names). A text column added later must be quoted by RFC 4180 (Shafranovich 2005, section 2).
 // pandas.read_csv reads the file as is ("inf" parses as infinity, empty cells as NaN).
 //
 // Same conventions as io/csv.hpp (whose csv_number this uses).
@@ -36,7 +36,7 @@ void write_answer_csv(const std::filesystem::path& path, const std::vector<Answe
 // A readable page: one table per scenario and query (measure, target, assurance, criterion), the
 // criterion stated, the statuses explained, and the caution paragraph. scenario_labels[i] labels
 // scenario i (e.g. "logging.privilege=0.5"); missing or empty labels are left out. The study name
-// and the labels are user text, shown literally (markdown_text, markdown_cell: text_escape.hpp).
+// and the labels are user text, shown literally (markdown_text: text_escape.hpp).
 std::string format_answer_md(const std::string& study_name, const std::vector<std::string>& scenario_labels,
                              const std::vector<AnswerRow>& rows);
 void write_answer_md(const std::filesystem::path& path, const std::string& study_name,

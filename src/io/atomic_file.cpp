@@ -5,16 +5,19 @@
 #include <unistd.h>
 
 #include <cerrno>
-#include <fstream>
-#include <sstream>
+#include <limits>
 #include <stdexcept>
 #include <vector>
+
+#include "io/regular_file.hpp"
 
 namespace dobudget::io {
 
 void write_file_atomically(const std::filesystem::path& file, std::string_view contents) {
   // A fresh temporary name made by mkstemp (created with O_EXCL, never an existing file or a link
-  // someone placed there), written, flushed to disk, then renamed over the target.
+  // someone placed there), written, flushed to disk, then renamed over the target. rename(2)
+  // replaces the name: a symbolic link (or a pipe) placed at `file` is replaced, never followed, so
+  // nothing outside the directory is written.
   std::string name = file.string() + ".tmp.XXXXXX";
   std::vector<char> buffer(name.begin(), name.end());
   buffer.push_back('\0');
@@ -43,16 +46,9 @@ void write_file_atomically(const std::filesystem::path& file, std::string_view c
 }
 
 std::string read_file(const std::filesystem::path& file) {
-  // Only regular files: a device (/dev/zero) or a pipe placed in a run directory would make us
-  // read without end, or block.
-  std::error_code ec;
-  if (std::filesystem::exists(file, ec) && !std::filesystem::is_regular_file(file, ec))
-    throw std::runtime_error("cannot read " + file.string() + ": not a regular file");
-  std::ifstream in(file, std::ios::binary);
-  if (!in) throw std::runtime_error("cannot read " + file.string());
-  std::ostringstream ss;
-  ss << in.rdbuf();
-  return ss.str();
+  // Only regular files (regular_file.hpp): a device (/dev/zero) or a pipe placed in a run
+  // directory would make us read without end, or block.
+  return *read_regular_file(file, std::numeric_limits<std::uintmax_t>::max());
 }
 
 }  // namespace dobudget::io

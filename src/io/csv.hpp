@@ -1,6 +1,7 @@
 // Plain CSV output that spreadsheets and pandas read directly: comma separated, a header row,
 // numbers in the shortest form that reads back to the same double, empty cells for missing
-// values. Text cells (none today) go through csv_field (text_escape.hpp: RFC 4180 quoting).
+// values. Text cells are the program's own words (strategy names, notes such as "no room for
+// planning"), never user text; one that could hold user text must be quoted by RFC 4180.
 #pragma once
 #include <optional>
 #include <string>

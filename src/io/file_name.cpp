@@ -1,5 +1,9 @@
 #include "io/file_name.hpp"
 
+#include <fmt/format.h>
+
+#include "core/seeding.hpp"
+
 namespace dobudget::io {
 
 std::string safe_file_name(std::string_view text) {
@@ -17,7 +21,10 @@ std::string safe_file_name(std::string_view text) {
   }
   if (out.size() > max_length) out.resize(max_length);
   while (!out.empty() && out.back() == '-') out.pop_back();
-  return out.empty() ? std::string("study") : out;
+  if (!out.empty()) return out;
+  // Nothing left (a name in another script, or only punctuation): "study-" and 8 hex digits of
+  // the name's FNV-1a hash (seeding.hpp), so that two such names do not share a directory.
+  return text.empty() ? std::string("study") : fmt::format("study-{:08x}", name_key(text) & 0xffffffffu);
 }
 
 }  // namespace dobudget::io

@@ -3,13 +3,15 @@
 #include <fmt/format.h>
 #include <nlohmann/json.hpp>
 
-#include <fstream>
+#include <limits>
+#include <optional>
 
 #include "core/unit.hpp"
 #include "io/atomic_file.hpp"
 #include "io/expected_rows.hpp"
 #include "io/input_error.hpp"
 #include "io/journal.hpp"
+#include "io/regular_file.hpp"
 #include "io/run_directory.hpp"
 #include "io/runs_table.hpp"
 #include "io/study_file.hpp"
@@ -19,24 +21,31 @@ namespace {
 
 namespace fs = std::filesystem;
 
-// A runs.csv row is at most a few hundred bytes (six keys, three numbers of at most 24 characters,
-// a short note); a file far larger than the study's rows can fill is refused before it is read.
-constexpr std::uintmax_t max_row_bytes = 1024;
-
-std::string read_input(const fs::path& file) {
+// The whole of a regular file of at most max_bytes (regular_file.hpp); InputError naming it
+// otherwise. *size, when given, receives its size; nullopt when it holds more than max_bytes.
+std::optional<std::string> read_input(const fs::path& file, std::uintmax_t max_bytes, std::uintmax_t* size = nullptr) {
   try {
-    return read_file(file);
+    return read_regular_file(file, max_bytes, size);
+  } catch (const InputError&) {
+    throw;  // not a regular file: named as such
   } catch (const std::runtime_error&) {
     throw InputError(file.string(), 0, "", "cannot be read");
   }
 }
 
-// The first line of a file (at most 200 bytes of it), without reading the rest.
+std::string read_input(const fs::path& file) { return *read_input(file, std::numeric_limits<std::uintmax_t>::max()); }
+
+// The first line of a regular file (at most 200 bytes of it), without reading the rest; a pipe
+// placed there is refused, not waited on.
 std::string first_line(const fs::path& file) {
-  std::ifstream in(file, std::ios::binary);
-  std::string line(200, '\0');
-  in.read(line.data(), static_cast<std::streamsize>(line.size()));
-  line.resize(static_cast<std::size_t>(in.gcount()));
+  std::string line;
+  try {
+    line = read_file_start(file, 200);
+  } catch (const InputError&) {
+    throw;
+  } catch (const std::runtime_error&) {
+    throw InputError(file.string(), 0, "", "cannot be read");
+  }
   return line.substr(0, line.find('\n'));
 }
 
@@ -52,7 +61,8 @@ void check_recorded_study_hash(const fs::path& dir, const std::string& resolved)
                                   hash, record.filename().string(), recorded));
   };
   const fs::path manifest = dir / "manifest.json";
-  const bool has_manifest = fs::exists(manifest);
+  std::error_code ec;
+  const bool has_manifest = fs::exists(fs::symlink_status(manifest, ec));
   if (has_manifest) {
     nlohmann::json j;
     try {
@@ -67,12 +77,14 @@ void check_recorded_study_hash(const fs::path& dir, const std::string& resolved)
     if (recorded != hash) throw edited(manifest, recorded.substr(0, 40));
   }
   const fs::path journal = dir / "units.journal";
-  if (fs::exists(journal)) {
+  bool journal_records_hash = false;
+  if (fs::exists(fs::symlink_status(journal, ec))) {
     const std::string line = first_line(journal);
     const std::string prefix = Journal::header("");  // "dobudget-journal 2 study \n"
     const std::string stem = prefix.substr(0, prefix.size() - 1);
     // Journals of format 1 (no header) record no hash; a format-2 header must name this study.
-    if (line.compare(0, stem.size(), stem) == 0 && line.substr(stem.size()) != hash) {
+    journal_records_hash = line.compare(0, stem.size(), stem) == 0;
+    if (journal_records_hash && line.substr(stem.size()) != hash) {
       const std::string recorded = line.substr(stem.size(), 40);
       if (!has_manifest) throw edited(journal, recorded);
       // study.resolved.yaml agrees with manifest.json: the journal is the odd one out.
@@ -82,6 +94,13 @@ void check_recorded_study_hash(const fs::path& dir, const std::string& resolved)
                                    recorded, hash));
     }
   }
+  // plan and merge always write manifest.json: with neither it nor a journal header, nothing
+  // records the study planned, and an edited study.resolved.yaml could not be told from the original.
+  if (!has_manifest && !journal_records_hash)
+    throw InputError(dir.string(), 0, "",
+                     "has no manifest.json (and no units.journal header recording the study hash), so its "
+                     "study.resolved.yaml cannot be checked against the study that was planned; rerun `dobudget "
+                     "plan` (the same study, the same --out) or `dobudget merge`, which write it");
 }
 
 FinishedRun load_finished_run(const fs::path& dir) {
@@ -102,14 +121,14 @@ FinishedRun load_finished_run(const fs::path& dir) {
   std::uintmax_t rows = 0;
   for (const UnitId& u : enumerate_units(run.study))
     rows += rows_per_unit(run.study.scenarios[static_cast<std::size_t>(u.scenario)].settings);
-  std::error_code ec;
-  const std::uintmax_t size = fs::file_size(runs_file, ec);
-  if (!ec && size > (rows + 1) * max_row_bytes)
+  std::uintmax_t size = 0;
+  const std::optional<std::string> runs_text = read_input(runs_file, (rows + 1) * max_row_bytes, &size);
+  if (!runs_text)
     throw InputError(runs_file.string(), 0, "",
                      fmt::format("is {} bytes, far more than the study's {} rows can fill; it is not this study's "
                                  "runs.csv",
                                  size, rows));
-  run.rows = parse_runs(read_input(runs_file), runs_file.string());
+  run.rows = parse_runs(*runs_text, runs_file.string());
   check_rows_against_study(run.study, run.rows, runs_file.string());
   if (fs::exists(dir / "timings.csv")) read_fit_seconds(dir / "timings.csv", run.rows);
   return run;

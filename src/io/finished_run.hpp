@@ -2,10 +2,14 @@
 // that travelled between people needs (design.md sec. 6, 7):
 //   1. study.resolved.yaml has the study hash recorded at planning time: manifest.json's
 //      study_hash and units.journal's header, whichever are present (an edited copy is refused);
+//      a directory where neither records it is refused (plan and merge always write manifest.json);
 //   2. it loads as a study (load_study: located errors);
 //   3. runs.csv parses cell by cell (parse_runs: type and range of every cell) and holds exactly
 //      the study's rows, each once, in order, with the measures the study takes
-//      (check_rows_against_study).
+//      (check_rows_against_study); runs.csv and timings.csv larger than the study's rows can fill
+//      are refused unread (max_row_bytes, runs_table.hpp).
+// Every file is opened as a regular file only (regular_file.hpp): a pipe or a device placed in the
+// directory is refused, never waited on or read without end.
 // Every problem is an InputError naming the file, and the line and column where there is one:
 //   runs/x/runs.csv:14: model_kl: must be at least 0, got -0.3
 #pragma once
@@ -29,7 +33,8 @@ struct FinishedRun {
 FinishedRun load_finished_run(const std::filesystem::path& dir);
 
 // Checks that study.resolved.yaml's bytes have the study hash that `dir`'s manifest.json and
-// units.journal header record (those present). Throws InputError naming the file that disagrees.
+// units.journal header record (those present). Throws InputError naming the file that disagrees,
+// and naming `dir` when neither records a hash.
 void check_recorded_study_hash(const std::filesystem::path& dir, const std::string& resolved_yaml);
 
 }  // namespace dobudget::io

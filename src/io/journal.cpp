@@ -11,9 +11,9 @@
 #include <charconv>
 #include <stdexcept>
 
-#include "io/atomic_file.hpp"
 #include "io/csv.hpp"
 #include "io/input_error.hpp"
+#include "io/regular_file.hpp"
 #include "io/runs_table.hpp"
 
 namespace dobudget::io {
@@ -194,17 +194,20 @@ Journal::Units Journal::parse_file(const std::string& text, const std::string& s
 
 namespace {
 
-// Opens `file` for appending (creating it if needed) and takes its exclusive lock, the pattern of a
-// lock file that others may remove: after the lock is taken, the path must still name the file
-// locked (else it was removed or replaced meanwhile, and we open again). *created: this call
-// created the file. Returns the descriptor; throws when another process holds the lock.
+// Opens `file` for reading and appending (creating it if needed) and takes its exclusive lock, the
+// pattern of a lock file that others may remove: after the lock is taken, the path must still name
+// the file locked (else it was removed or replaced meanwhile, and we open again). Only a regular
+// file, never through a symbolic link (open_regular_file, Links::refuse): a link or a pipe named
+// units.journal is refused (InputError naming it), so records go nowhere but into the directory,
+// and nothing blocks. *created: this call created the file. Returns the descriptor; throws when
+// another process holds the lock.
 int open_locked(const std::filesystem::path& file, bool* created) {
   for (int attempt = 0; attempt < 100; ++attempt) {
     *created = true;
-    int fd = ::open(file.c_str(), O_WRONLY | O_APPEND | O_CREAT | O_EXCL | O_CLOEXEC, 0666);
+    int fd = open_regular_file(file, O_RDWR | O_APPEND | O_CREAT | O_EXCL, Links::refuse);
     if (fd < 0 && errno == EEXIST) {
       *created = false;
-      fd = ::open(file.c_str(), O_WRONLY | O_APPEND | O_CLOEXEC);
+      fd = open_regular_file(file, O_RDWR | O_APPEND, Links::refuse);
     }
     if (fd < 0) {
       if (errno == ENOENT) continue;  // removed between the two opens
@@ -218,7 +221,7 @@ int open_locked(const std::filesystem::path& file, bool* created) {
                                "stop it, then run again");
     }
     struct stat held {}, named {};
-    if (::fstat(fd, &held) == 0 && ::stat(file.c_str(), &named) == 0 && held.st_dev == named.st_dev &&
+    if (::fstat(fd, &held) == 0 && ::lstat(file.c_str(), &named) == 0 && held.st_dev == named.st_dev &&
         held.st_ino == named.st_ino)
       return fd;
     ::close(fd);  // the file we locked is no longer the journal: try again
@@ -239,7 +242,7 @@ Journal::Journal(const std::filesystem::path& file, const std::string& study_has
   }
   try {
     if (while_locked) while_locked();
-    const std::string text = read_file(file);
+    const std::string text = read_descriptor(fd, file);  // what was locked, not a second lookup of the name
     std::size_t intact = 0;
     try {
       units_ = parse_file(text, study_hash, &intact, &torn_, file.string(), check);
@@ -249,7 +252,8 @@ Journal::Journal(const std::filesystem::path& file, const std::string& study_has
                                                 "--out directory"
                                   : e.message);
     }
-    if (intact < text.size()) std::filesystem::resize_file(file, intact);
+    if (intact < text.size() && ::ftruncate(fd, static_cast<off_t>(intact)) != 0)
+      throw std::runtime_error("cannot truncate the torn record off " + file.string());
     if (intact == 0) {
       const std::string h = header(study_hash);
       if (std::fwrite(h.data(), 1, h.size(), file_) != h.size() || std::fflush(file_) != 0)
@@ -259,7 +263,8 @@ Journal::Journal(const std::filesystem::path& file, const std::string& study_has
     // Leave nothing behind: a journal this call created and nothing was written to is removed
     // (still under the lock; a process waiting for it finds the path gone and opens afresh).
     std::error_code ec;
-    if (created && std::filesystem::file_size(file, ec) == 0 && !ec) std::filesystem::remove(file, ec);
+    struct stat held {};
+    if (created && ::fstat(fd, &held) == 0 && held.st_size == 0) std::filesystem::remove(file, ec);
     std::fclose(file_);
     file_ = nullptr;
     throw;
@@ -271,7 +276,8 @@ Journal::~Journal() {
 }
 
 bool Journal::in_use(const std::filesystem::path& file) {
-  const int fd = ::open(file.c_str(), O_RDONLY | O_CLOEXEC);
+  // A regular file only (a pipe would block open(2)): InputError for anything else.
+  const int fd = open_regular_file(file, O_RDONLY, Links::follow);
   if (fd < 0) return false;
   bool busy = false;
   if (::flock(fd, LOCK_SH | LOCK_NB) != 0) busy = errno == EWOULDBLOCK;

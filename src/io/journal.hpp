@@ -51,7 +51,9 @@ class Journal {
   // `check`, when given), truncates a torn tail and writes the header line to an empty journal.
   // Throws std::runtime_error if another process is writing the journal, InputError (file, line)
   // for a missing or foreign header, a damaged record other than the last, or a record that fails
-  // `check`; whatever `while_locked` throws is passed on. Nothing is changed when it throws.
+  // `check`, and InputError naming the file when it is a symbolic link or not a regular file (a
+  // pipe, a device: regular_file.hpp), so that no record is written outside the run directory and
+  // nothing blocks; whatever `while_locked` throws is passed on. Nothing is changed when it throws.
   Journal(const std::filesystem::path& file, const std::string& study_hash,
           const std::function<void()>& while_locked = {}, const RecordCheck& check = {});
   ~Journal();
@@ -86,6 +88,7 @@ class Journal {
 
   // True when a process holds the journal at `file` open for writing (its lock is taken). Reads
   // nothing and changes nothing; false when the file does not exist or locks are not supported.
+  // InputError naming the file when it is not a regular file (a pipe would block the open).
   static bool in_use(const std::filesystem::path& file);
 
  private:

@@ -653,7 +653,7 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
   }
 
   // ---- report.md. User text (the study name, the run directory's name, swept keys and values,
-  // labels) goes in through markdown_text / markdown_cell only, never inside a code span.
+  // labels) goes in through markdown_text only, never inside a code span.
   const ScenarioSettings& first = study.scenarios.front().settings;
   std::string md = fmt::format("# Report: {}\n\n", markdown_text(study.name));
   fs::path shown = fs::absolute(run_dir).lexically_normal();
@@ -676,11 +676,11 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
     for (const auto& [k, v] : assignments0) keys.push_back(k);
     md += fmt::format("{} scenarios, the cartesian product of the swept values of {}:\n\n", study.scenarios.size(),
                       join_map(keys, ", ", [](const std::string& k) { return markdown_text(k); }));
-    md += "| scenario |" + join_map(keys, "", [](const std::string& k) { return " " + markdown_cell(k) + " |"; }) + "\n";
+    md += "| scenario |" + join_map(keys, "", [](const std::string& k) { return " " + markdown_text(k) + " |"; }) + "\n";
     md += "|---:|" + std::string() + join_map(keys, "", [](const std::string&) { return std::string("---|"); }) + "\n";
     for (const auto& sc : study.scenarios)
       md += fmt::format("| {} |", sc.index) +
-            join_map(sc.assignments, "", [](const std::pair<std::string, std::string>& a) { return " " + markdown_cell(a.second) + " |"; }) +
+            join_map(sc.assignments, "", [](const std::pair<std::string, std::string>& a) { return " " + markdown_text(a.second) + " |"; }) +
             "\n";
   }
 

@@ -35,7 +35,7 @@
 // hostile: it reaches the scripts only as gnuplot single-quoted strings (gnuplot_string,
 // gnuplot_lines: a two-line title is 'line one'."\n".'line two', never user text inside double
 // quotes, where gnuplot would run `backquoted` commands), the .dat title comment only on one line
-// (printable_line), report.md only through markdown_text / markdown_cell, and the terminal only
+// (printable_line), report.md only through markdown_text, and the terminal only
 // through printable_line; see text_escape.hpp.
 //
 // gnuplot runs as a child process (one per figure), without a shell (child_process.hpp).

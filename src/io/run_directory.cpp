@@ -105,6 +105,7 @@ PlanOutcome plan_study(const Study& study, const std::string& resolved, const Pl
     if (journal.units().count(i)) ++out.units_resumed;
     else todo.push_back(i);
   }
+  if (opt.before_computing) opt.before_computing(units, todo);
   Progress progress{out.units_resumed, mine.size(), 0, 0.0};
   RunnerHooks hooks;
   hooks.on_unit = [&](std::size_t index, std::vector<RunRecord>&& rows) {

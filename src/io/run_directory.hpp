@@ -40,6 +40,11 @@ struct PlanOptions {
   std::optional<Shard> shard;
   std::function<void(const Progress&)> on_progress;  // called after every finished unit
   std::function<bool()> stop_requested;             // polled between units
+  // Called by plan_study once the journal has been read and before any unit is computed, with
+  // every unit (enumerate_units) and the indices of those this run still has to compute; it may
+  // throw to refuse the run (no unit is computed, nothing more is written). `plan` states and
+  // limits the cost of a resumed directory's remaining units here (plan_command.cpp).
+  std::function<void(const std::vector<UnitId>& units, const std::vector<std::size_t>& todo)> before_computing;
   // Runs the units `todo` and reports each finished one through the hooks. Default: run_units
   // (threads of this process); an MPI build supplies one that also hands units to other ranks.
   std::function<void(const Study&, const std::vector<UnitId>&, const std::vector<std::size_t>& todo, int threads,

@@ -6,11 +6,13 @@
 #include <charconv>
 #include <cmath>
 #include <limits>
+#include <optional>
 #include <stdexcept>
 
 #include "io/atomic_file.hpp"
 #include "io/csv.hpp"
 #include "io/input_error.hpp"
+#include "io/regular_file.hpp"
 
 namespace dobudget::io {
 namespace {
@@ -179,6 +181,8 @@ std::vector<RunRecord> read_runs(const std::filesystem::path& file) {
   std::string text;
   try {
     text = read_file(file);
+  } catch (const InputError&) {
+    throw;  // not a regular file: named as such
   } catch (const std::runtime_error&) {
     throw InputError(file.string(), 0, "", "cannot be read");
   }
@@ -191,12 +195,22 @@ std::vector<RunRecord> read_runs(const std::filesystem::path& file) {
 void read_fit_seconds(const std::filesystem::path& timings, std::vector<RunRecord>& rows) {
   // Informative only (wall-clock seconds), but read as carefully: same keys, same order.
   const std::string source = timings.string();
-  std::string text;
+  const std::uintmax_t cap = (rows.size() + 1) * max_row_bytes;
+  std::uintmax_t size = 0;
+  std::optional<std::string> read;
   try {
-    text = read_file(timings);
+    read = read_regular_file(timings, cap, &size);
+  } catch (const InputError&) {
+    throw;  // not a regular file: named as such
   } catch (const std::runtime_error&) {
     throw InputError(source, 0, "", "cannot be read");
   }
+  if (!read)
+    throw InputError(source, 0, "",
+                     fmt::format("is {} bytes, far more than the {} rows of runs.csv beside it can fill; delete "
+                                 "timings.csv or run again",
+                                 size, rows.size()));
+  const std::string& text = *read;
   const std::vector<std::string> lines = lines_of(text);
   if (lines.empty() || lines[0] != timings_header)
     throw InputError(source, 1, "", fmt::format("not a dobudget timings.csv header (expected '{}')", timings_header));

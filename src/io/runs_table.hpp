@@ -12,6 +12,7 @@
 // loglik is a number (not nan); converged is 0 or 1; note holds no control character.
 // Whether the rows are the ones a study expects is checked by finished_run.hpp.
 #pragma once
+#include <cstdint>
 #include <filesystem>
 #include <string>
 #include <vector>
@@ -23,6 +24,11 @@ namespace dobudget::io {
 inline constexpr const char* runs_header =
     "scenario,environment,replicate,strategy,logged,pilot,model_kl,return_gap,loglik,iterations,converged,note";
 inline constexpr const char* timings_header = "scenario,environment,replicate,strategy,logged,pilot,fit_seconds";
+
+// A runs.csv (or timings.csv) row is at most a few hundred bytes (six keys, three numbers of at most
+// 24 characters, a short note): a file of more than (rows + 1) times this many bytes is not the
+// table of those rows, and is refused before it is read.
+inline constexpr std::uintmax_t max_row_bytes = 1024;
 
 std::string runs_csv(const std::vector<RunRecord>& rows);
 std::string timings_csv(const std::vector<RunRecord>& rows);
@@ -42,7 +48,8 @@ std::vector<RunRecord> parse_runs(const std::string& text, const std::string& so
 std::vector<RunRecord> read_runs(const std::filesystem::path& runs_csv_file);
 
 // Sets fit_seconds of `rows` from a timings.csv: its rows must have the keys of `rows`, in the same
-// order, and fit_seconds finite and >= 0; else an InputError naming the file and the line.
+// order, and fit_seconds finite and >= 0; else an InputError naming the file and the line. A file
+// larger than those rows can fill (max_row_bytes), or not a regular file, is refused unread.
 void read_fit_seconds(const std::filesystem::path& timings_csv_file, std::vector<RunRecord>& rows);
 
 }  // namespace dobudget::io

@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "io/model_file.hpp"
+#include "io/text_escape.hpp"
 #include "io/yaml_input.hpp"
 
 namespace dobudget::io {
@@ -144,13 +145,23 @@ std::string number_text(double x) { return fmt::format("{}", x); }
 //    (model_file.hpp: max_abs_reward).
 //  * budgets: 10^7 episodes each, so pilot + logged (2 x 10^7) fits an int, as do episode counts
 //    and episode indices x (H + 1) in 64-bit offsets.
+//  * budget lists (budgets.pilot, budgets.logged): at most 100 budgets each, counted before any is
+//    read. A unit has strategies x logged x pilot rows, and every row is kept until the tables are
+//    written: 3 x 100 x 100 = 30000 rows a unit is already far beyond any sensible grid (the worked
+//    studies list at most 5), while 10^4 budgets each made 3 x 10^8 rows a unit, and a 98 KB file
+//    allocated gigabytes before the memory estimate could refuse it.
 //  * draws, replicates: 10^5 each; units (scenarios x draws x replicates): 10^7, in 64-bit
 //    arithmetic (the journal, runs.csv and the answer hold every unit's rows).
 //  * sweep: at most 10^4 scenarios, the product of the value counts checked without overflow
 //    before any scenario is built (16 keys of 16 values would wrap a 64-bit count to 0).
-//  * fit.restarts 10^3, fit.max_iterations 10^6; evaluation.trajectories and planner.rollouts
-//    10^7; planner.belief_points 10^4 (a backup holds points x points doubles: 800 MB at 10^4);
-//    planner.exact_histories 10^9.
+//  * fit.restarts 10^3, fit.max_iterations 10^5: the default study's starts converge in 91 E-steps
+//    on average (cap 200), and EM that has not met its tolerance after thousands of accelerated
+//    steps is stalled on a flat ridge of the likelihood, where more steps change little (common
+//    practice); 10^5 is 500 times the default cap. `plan` limits the cost of every start running to
+//    its cap: at 10^6 that bound is 10^4 times a typical start (100 E-steps), so a study of about 2
+//    core-hours was bounded at 2 x 10^4.
+//  * evaluation.trajectories and planner.rollouts 10^7; planner.belief_points 10^4 (a backup holds
+//    points x points doubles: 800 MB at 10^4); planner.exact_histories 10^9.
 //  * fit.prior: at most 1e100, so that a row of pseudo-counts (Z x prior) and the objective's
 //    prior x sum log q stay finite.
 constexpr int max_horizon = 10000;
@@ -160,7 +171,8 @@ constexpr int max_replicates = 100000;
 constexpr long long max_units = 10000000;
 constexpr std::size_t max_scenarios = 10000;
 constexpr int max_restarts = 1000;
-constexpr int max_iterations_cap = 1000000;
+constexpr int max_iterations_cap = 100000;
+constexpr std::size_t max_budgets_per_list = 100;
 constexpr int max_trajectories = 10000000;
 constexpr int max_rollouts = 10000000;
 constexpr int max_belief_points = 10000;
@@ -232,8 +244,8 @@ class StudyParser {
       const EnvironmentSettings& env = scenario.settings.environment;
       units += static_cast<long long>(env.given ? 1 : env.draws) * scenario.settings.replicates;
       if (units > max_units) {
-        const std::optional<Located> at = get(top, "replicates");
-        in_.fail(at ? at->line : root.line, at ? at->key : "replicates",
+        const Located at = units_driver(top, scenario.settings, total);
+        in_.fail(at,
                  fmt::format("makes more than {} units (scenarios x environment.draws x replicates{}); split the "
                              "study or use fewer draws or replicates",
                              max_units, total > 1 ? fmt::format(", {} scenarios", total) : ""));
@@ -250,32 +262,41 @@ class StudyParser {
  private:
   // A study name is text for people: pages, figure titles and tables show it (escaped for each),
   // and the default run directory is derived from it (file_name.hpp). It must be non-empty, at most
-  // max_name_bytes long, valid UTF-8 and free of control characters (line breaks, tabs, escapes).
+  // max_name_bytes long, valid UTF-8 and free of control characters (line breaks, tabs, escapes,
+  // bidirectional overrides): it must read back unchanged through printable_line.
   void check_name(const Located& v, const std::string& name) const {
     constexpr std::size_t max_name_bytes = 200;
     if (name.empty()) in_.fail(v, "must not be empty");
     if (name.size() > max_name_bytes)
       in_.fail(v, fmt::format("must be at most {} bytes long, got {}", max_name_bytes, name.size()));
-    for (std::size_t i = 0; i < name.size();) {
+    for (std::size_t i = 0; i < name.size(); ++i) {
       const auto c = static_cast<unsigned char>(name[i]);
       if (c < 0x20 || c == 0x7f)
         in_.fail(v, fmt::format("must not hold control characters (line breaks, tabs, escapes); found byte 0x{:02x} "
                                 "at position {}",
                                 c, i + 1));
-      // UTF-8 (RFC 3629, sec. 3): the lead byte gives the length; continuation bytes are 10xxxxxx;
-      // no overlong forms, no surrogates, nothing above U+10FFFF.
-      const std::size_t n = c < 0x80 ? 1 : (c >= 0xc2 && c <= 0xdf) ? 2 : (c >= 0xe0 && c <= 0xef) ? 3
-                                        : (c >= 0xf0 && c <= 0xf4)   ? 4 : 0;
-      bool ok = n > 0 && i + n <= name.size();
-      for (std::size_t k = 1; ok && k < n; ++k) ok = (static_cast<unsigned char>(name[i + k]) & 0xc0) == 0x80;
-      if (ok && n > 1) {
-        const auto c1 = static_cast<unsigned char>(name[i + 1]);
-        ok = !(c == 0xe0 && c1 < 0xa0) && !(c == 0xed && c1 >= 0xa0) && !(c == 0xf0 && c1 < 0x90) &&
-             !(c == 0xf4 && c1 >= 0x90);
-      }
-      if (!ok) in_.fail(v, fmt::format("must be UTF-8 text; the byte at position {} is not", i + 1));
-      i += n;
     }
+    if (const auto bad = first_invalid_utf8(name))
+      in_.fail(v, fmt::format("must be UTF-8 text; the byte at position {} is not", *bad + 1));
+    // C1 controls, line and paragraph separators, bidirectional overrides (text_escape.hpp).
+    if (printable_line(name) != name)
+      in_.fail(v, "must not hold control characters (C1 controls, line separators, bidirectional overrides)");
+  }
+
+  // Where the units limit is passed: of the factors of scenarios x environment.draws x replicates
+  // the study writes (the sweep, and draws and replicates in place or swept), the largest; the
+  // defaults alone (1 x 4 x 10) never pass it.
+  Located units_driver(const Section& top, const ScenarioSettings& s, std::size_t scenarios) const {
+    const Section env = section(top, "environment", environment_keys);
+    const std::pair<double, std::optional<Located>> factors[] = {
+        {static_cast<double>(s.replicates), get(top, "replicates")},
+        {static_cast<double>(s.environment.given ? 1 : s.environment.draws), get(env, "draws")},
+        {static_cast<double>(scenarios), top.find("sweep") ? std::optional<Located>(*top.find("sweep")) : std::nullopt}};
+    const std::pair<double, std::optional<Located>>* best = nullptr;
+    for (const auto& f : factors)
+      if (f.second && (!best || f.first > best->first)) best = &f;
+    if (best) return *best->second;
+    return Located{YAML::Node(), "replicates", 1};  // not reached: see above
   }
 
   Section section(const Section& top, std::string_view name, const std::vector<std::string>& keys) const {
@@ -407,6 +428,10 @@ class StudyParser {
                                int max) const {
     const std::optional<Located> v = get(s, name);
     if (!v) return fallback;
+    if (v->node.IsSequence() && v->node.size() > max_budgets_per_list)  // counted before the budgets are read
+      in_.fail(*v, fmt::format("lists {} budgets, more than the {} a list may hold (every unit fits and keeps "
+                               "strategies x logged x pilot budgets); choose fewer budgets",
+                               v->node.size(), max_budgets_per_list));
     const std::vector<Located> items = in_.items(*v);
     if (items.empty()) in_.fail(*v, "must list at least one budget");
     std::vector<int> out;

@@ -54,8 +54,9 @@
 //
 // Whole numbers may also be written as number literals with an integral value ("1e3").
 // Upper limits (what the computation can hold; reasons in study_file.cpp): sizes and
-// fit.latent_states 200, horizon 10^4, budgets 10^7 episodes, draws and replicates 10^5, units
-// (scenarios x draws x replicates) 10^7, scenarios 10^4, fit.restarts 10^3, fit.max_iterations 10^6,
+// fit.latent_states 200, horizon 10^4, budgets 10^7 episodes and 100 per list, draws and
+// replicates 10^5, units (scenarios x draws x replicates) 10^7, scenarios 10^4, fit.restarts 10^3,
+// fit.max_iterations 10^5,
 // fit.prior 1e100, evaluation.trajectories and planner.rollouts 10^7 (rollouts at least 2),
 // planner.belief_points 10^4, planner.exact_histories 10^9; |reward| 1e100 (model_file.hpp).
 // Every problem is an InputError (input_error.hpp) with the file, line and key path.

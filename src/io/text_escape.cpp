@@ -1,6 +1,7 @@
 // Making user text safe for each output format; see text_escape.hpp.
 #include "io/text_escape.hpp"
 
+#include <algorithm>
 #include <cstdint>
 
 namespace dobudget::io {
@@ -73,6 +74,27 @@ std::string printable_line(std::string_view text) {
   return out;
 }
 
+std::string printable_text(std::string_view text) {
+  std::string out;
+  for (std::size_t start = 0; start <= text.size();) {
+    const std::size_t end = std::min(text.find('\n', start), text.size());
+    if (start) out += '\n';
+    out += printable_line(text.substr(start, end - start));
+    start = end + 1;
+  }
+  return out;
+}
+
+std::optional<std::size_t> first_invalid_utf8(std::string_view text) {
+  for (std::size_t i = 0; i < text.size();) {
+    std::uint32_t code = 0;
+    const std::size_t n = utf8_sequence(text, i, code);
+    if (n == 0) return i;
+    i += n;
+  }
+  return std::nullopt;
+}
+
 std::string gnuplot_string(std::string_view text) {
   std::string out = "'";
   for (char c : printable_line(text)) {
@@ -93,29 +115,19 @@ std::string gnuplot_lines(const std::vector<std::string>& lines) {
 
 std::string markdown_text(std::string_view text) {
   constexpr std::string_view escaped = "\\`*_{}[]()#+-.!|~:$";
+  constexpr std::string_view word_joiner = "\xE2\x81\xA0";  // U+2060: see text_escape.hpp on '@'
   std::string out;
   for (char c : printable_line(text)) {
     if (c == '&') out += "&amp;";
     else if (c == '<') out += "&lt;";
     else if (c == '>') out += "&gt;";
+    else if (c == '@') out.append("@").append(word_joiner);
     else {
       if (escaped.find(c) != std::string_view::npos) out += '\\';
       out += c;
     }
   }
   return out;
-}
-
-std::string markdown_cell(std::string_view text) { return markdown_text(text); }
-
-std::string csv_field(std::string_view text) {
-  if (text.find_first_of(",\"\r\n") == std::string_view::npos) return std::string(text);
-  std::string out = "\"";
-  for (char c : text) {
-    if (c == '"') out += '"';  // a quote inside a quoted field is written twice
-    out += c;
-  }
-  return out + "\"";
 }
 
 }  // namespace dobudget::io

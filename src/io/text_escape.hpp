@@ -16,6 +16,7 @@
 //     section 4: no overlong forms, no surrogates, nothing above U+10FFFF) becomes U+FFFD.
 // Everything else passes unchanged.
 #pragma once
+#include <optional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -26,6 +27,14 @@ namespace dobudget::io {
 // (a newline in a name cannot end the comment; a CR cannot either, which pandas would take as a
 // line break).
 std::string printable_line(std::string_view text);
+
+// printable_line of each line of `text`, line breaks (LF) kept: for messages of several lines
+// printed to the terminal (an error that quotes user text, a program's output).
+std::string printable_text(std::string_view text);
+
+// The position of the first byte of `text` that is not part of a well-formed UTF-8 sequence
+// (RFC 3629, section 4), or nullopt when the whole text is well-formed.
+std::optional<std::size_t> first_invalid_utf8(std::string_view text);
 
 // A gnuplot string expression holding `text` (printable_line first): single-quoted pieces, each '
 // of the text written as the constant "'" between them: it's -> 'it'."'".'s'.
@@ -48,17 +57,12 @@ std::string gnuplot_lines(const std::vector<std::string>& lines);
 // "http://...") and $ (GitHub's math); CommonMark 0.31.2, section 2.4: any ASCII punctuation
 // character may be backslash-escaped. & < > are written as the entity references &amp; &lt; &gt;
 // (CommonMark section 2.5), which also hold in renderers without backslash escapes for them, so
-// no HTML tag or entity can be formed. Good inside headings, paragraphs, link and image text.
+// no HTML tag or entity can be formed. '@' is followed by U+2060 WORD JOINER (invisible, no
+// width): GitHub's extended e-mail autolinks (GFM spec 0.29, section 6.9) turn "a@b.com" into a
+// mailto: link even when the '@' is backslash-escaped or written &#64; (checked with cmark-gfm
+// 0.29.0.gfm.6), and the joiner breaks the address. The pipe's \| is the escaped pipe that GFM
+// table cells take (GFM section 4.10), so the result is good inside headings, paragraphs, table
+// cells, link and image text.
 std::string markdown_text(std::string_view text);
-
-// A cell of a Markdown (GitHub Flavored Markdown) table: markdown_text(), whose \| is the escaped
-// pipe that GFM table cells take (GFM spec 0.29, section 4.10) and whose flattened line breaks
-// keep the row on one line.
-std::string markdown_cell(std::string_view text);
-
-// A CSV field (RFC 4180: Shafranovich 2005, section 2): as is, unless it holds a comma, a double
-// quote, CR or LF; then enclosed in double quotes with each double quote doubled. The text itself is
-// kept (line breaks included), so that a CSV reader gets back exactly `text`.
-std::string csv_field(std::string_view text);
 
 }  // namespace dobudget::io

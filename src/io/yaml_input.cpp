@@ -1,5 +1,7 @@
 #include "io/yaml_input.hpp"
 
+#include <yaml-cpp/depthguard.h>
+
 #include <yaml-cpp/eventhandler.h>
 
 #include <algorithm>
@@ -269,6 +271,10 @@ YAML::Node parse_yaml(const std::string& text, const std::string& file) {
   try {
     check_documents_advance(text, file);
     documents = YAML::LoadAll(text);
+  } catch (const YAML::DeepRecursion& e) {  // yaml-cpp's guard against unbounded recursion
+    throw InputError(file, e.mark.line >= 0 ? e.mark.line + 1 : 0, "",
+                     "malformed YAML: lists or mappings nested more than " + std::to_string(e.depth() - 1) +
+                         " levels deep; no study or model file needs that");
   } catch (const YAML::Exception& e) {
     throw InputError(file, e.mark.line >= 0 ? e.mark.line + 1 : 0, "", "malformed YAML: " + e.msg);
   }

@@ -27,28 +27,49 @@ namespace {
 
 enum Tag : int { ready_tag = 1, assign_tag = 2, result_tag = 3, stop_tag = 4, cancelled_tag = 5, cancel_tag = 6 };
 
-// One DrawContext per (scenario, draw), built by whichever thread of this process needs it first.
+// One DrawContext per (scenario, draw), built by whichever thread of this process needs it first
+// and released once the run has moved past its draw. Units are handed out in the order of `todo`,
+// which is canonical (scenario, draw, replicate), so when a unit of a later draw is taken no unit
+// of an earlier draw will come again: take() (called, in handing-out order, under the lock that
+// orders the units) drops the cache's hold on every earlier draw, and the threads still computing
+// a unit of one keep its context alive until they finish. A process thus holds at most one context
+// per compute thread, plus the latest (the threaded runner's bound, runner.hpp). Were units ever
+// taken out of order, a dropped context would be built again: the same context (it is keyed by
+// the draw), at the cost of building it twice.
 class DrawContextCache {
  public:
-  const DrawContext& get(const Study& study, const UnitId& u, const StopToken& stop) {
-    Slot* slot = nullptr;
-    {
-      std::lock_guard lock(mutex_);
-      auto& p = slots_[{u.scenario, u.draw}];
-      if (!p) p = std::make_unique<Slot>();
-      slot = p.get();
+  class Handle {
+   public:
+    // The draw's context, built by the first thread that asks for it.
+    const DrawContext& get(const Study& study, const UnitId& u, const StopToken& stop) const {
+      std::call_once(slot_->once, [&] { slot_->context = make_draw_context(study, u.scenario, u.draw, stop); });
+      return slot_->context;
     }
-    std::call_once(slot->once, [&] { slot->context = make_draw_context(study, u.scenario, u.draw, stop); });
-    return slot->context;
+
+   private:
+    friend class DrawContextCache;
+    struct Slot {
+      std::once_flag once;
+      DrawContext context;
+    };
+    std::shared_ptr<Slot> slot_;
+  };
+
+  // The unit's draw, and the end of the cache's hold on every earlier draw.
+  Handle take(const UnitId& u) {
+    std::lock_guard lock(mutex_);
+    const std::pair<int, int> key{u.scenario, u.draw};
+    slots_.erase(slots_.begin(), slots_.lower_bound(key));
+    auto& slot = slots_[key];
+    if (!slot) slot = std::make_shared<Handle::Slot>();
+    Handle h;
+    h.slot_ = slot;
+    return h;
   }
 
  private:
-  struct Slot {
-    std::once_flag once;
-    DrawContext context;
-  };
   std::mutex mutex_;
-  std::map<std::pair<int, int>, std::unique_ptr<Slot>> slots_;
+  std::map<std::pair<int, int>, std::shared_ptr<Handle::Slot>> slots_;
 };
 
 // A RESULT message is the unit's units.journal record (io/journal.hpp): "<unit index> TAB <CRC-32>
@@ -177,10 +198,18 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
   });
   double unit_seconds = 0.0;  // summed over finished units (remote: from ASSIGN to RESULT)
   std::size_t units_timed = 0;
+  DrawContextCache cache;  // rank 0's own compute threads
   auto take = [&]() -> std::optional<std::size_t> {
     std::lock_guard lock(mutex);
     if (failure || next >= todo.size() || stop.requested()) return std::nullopt;
     return todo[next++];
+  };
+  // A unit for a local thread, with its draw taken from the cache in the order units are handed out.
+  auto take_local = [&]() -> std::optional<std::pair<std::size_t, DrawContextCache::Handle>> {
+    std::lock_guard lock(mutex);
+    if (failure || next >= todo.size() || stop.requested()) return std::nullopt;
+    const std::size_t i = todo[next++];
+    return std::pair{i, cache.take(units[i])};
   };
   auto fail = [&](std::exception_ptr e) {
     std::lock_guard lock(mutex);
@@ -199,16 +228,16 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
   };
 
   // Rank 0's own compute threads.
-  DrawContextCache cache;
   std::vector<std::thread> pool;
   const int local_threads = todo.empty() ? 0 : std::max(1, threads);
   for (int t = 0; t < local_threads; ++t)
     pool.emplace_back([&] {
       try {
-        while (const auto i = take()) {
+        while (const auto taken = take_local()) {
+          const auto& [i, draw] = *taken;
           const auto start = Clock::now();
-          auto rows = run_unit(study, units[*i], cache.get(study, units[*i], stop), stop);
-          deliver(0, *i, std::move(rows), seconds_since(start));
+          auto rows = run_unit(study, units[i], draw.get(study, units[i], stop), stop);
+          deliver(0, i, std::move(rows), seconds_since(start));
         }
       } catch (const Cancelled&) {
         // cut short by a stop: nothing delivered, and take() hands out nothing more
@@ -334,16 +363,18 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
       pool.emplace_back([&] {
         while (true) {
           std::size_t index = 0;
+          DrawContextCache::Handle draw;
           {
             std::unique_lock lock(mutex);
             work_ready.wait(lock, [&] { return closed || !queue.empty(); });
             if (queue.empty()) return;
             index = queue.front();
             queue.pop_front();
+            draw = cache.take(units[index]);  // in the order rank 0 assigned the units
           }
           try {
             const UnitId& u = units[index];
-            std::string text = io::Journal::record(index, run_unit(study, u, cache.get(study, u, cut_short), cut_short));
+            std::string text = io::Journal::record(index, run_unit(study, u, draw.get(study, u, cut_short), cut_short));
             std::lock_guard lock(mutex);
             outbox.push_back(std::move(text));
           } catch (const Cancelled&) {

@@ -15,7 +15,8 @@
 // the other ranks (MPI_THREAD_FUNNELED: only main threads call MPI). A worker rank runs T compute
 // threads and keeps at most T units at a time: one per thread, none queued ahead, so the tail of a
 // run is balanced to within one unit per thread. Each process builds a DrawContext once per
-// (scenario, draw) it meets and shares it between its threads. Why rank 0 computes: with a
+// (scenario, draw) it meets, shares it between its threads and releases it when the units handed
+// out (in canonical order) have moved past its draw and its last unit here has finished. Why rank 0 computes: with a
 // dedicated coordinator, 2 ranks would give 1 worker (at most 50% efficiency from 1 to 2 ranks);
 // serving costs rank 0's main thread a few microseconds per unit.
 //

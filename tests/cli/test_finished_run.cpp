@@ -1,8 +1,11 @@
 // End-to-end checks that `answer` and `report` re-analyse only a finished run directory they can
 // trust (io/finished_run.hpp): a runs.csv cut short, header-only, with an extra or repeated row or a
 // negative model_kl, and a study.resolved.yaml edited after planning, are refused with exit code 2
-// and a message naming the file, the line and the column, and nothing is written.
+// and a message naming the file, the line and the column, and nothing is written; so are a pipe in
+// place of any of its files (at once, never waited on) and a directory where nothing records the
+// study hash planned.
 #include <catch2/catch.hpp>
+#include <sys/stat.h>
 
 #include "cli_harness.hpp"
 
@@ -11,23 +14,6 @@ using namespace cli_test;
 namespace {
 
 namespace fs = std::filesystem;
-
-std::vector<std::string> lines(const std::string& text) {
-  std::vector<std::string> out;
-  std::size_t pos = 0;
-  while (pos < text.size()) {
-    const auto nl = text.find('\n', pos);
-    out.push_back(text.substr(pos, nl - pos));
-    pos = nl == std::string::npos ? text.size() : nl + 1;
-  }
-  return out;
-}
-
-std::string join_lines(const std::vector<std::string>& ls) {
-  std::string s;
-  for (const auto& l : ls) s += l + "\n";
-  return s;
-}
 
 }  // namespace
 
@@ -93,4 +79,46 @@ TEST_CASE("answer and report: a damaged runs.csv or an edited study.resolved.yam
   const Result rep = run("report " + (s / "run").string());
   INFO(rep.out);
   CHECK(rep.code == 0);
+}
+
+TEST_CASE("answer and report: a pipe in place of a run file is refused at once; so is a directory without "
+          "manifest.json or journal header",
+          "[cli][answer][report][finished_run]") {
+  // The reproduced bugs: with a pipe (mkfifo) as units.journal, answer and report blocked reading
+  // its first line; with manifest.json and units.journal both removed, an edited
+  // study.resolved.yaml was trusted.
+  Scratch s("finished-run-kinds");
+  write(s / "study.yaml", tiny_study);
+  const Result p = run("plan " + (s / "study.yaml").string() + " --quiet --out " + (s / "run").string());
+  INFO(p.out);
+  REQUIRE(p.code == 0);
+  const fs::path dir = s / "run";
+  const std::string answer = slurp(dir / "answer.csv");
+  for (const char* name : {"units.journal", "manifest.json", "runs.csv", "timings.csv", "study.resolved.yaml"}) {
+    const fs::path file = dir / name;
+    const std::string kept = slurp(file);
+    fs::remove(file);
+    REQUIRE(::mkfifo(file.c_str(), 0644) == 0);
+    for (const std::string command : {"answer", "report"}) {
+      const Result r = run_within(20, command + " " + dir.string());
+      INFO(name << ", " << command << ":\n" << r.out);
+      CHECK(r.code == 2);  // not 137: it did not hang until killed
+      CHECK(r.out.find("error: " + file.string() + ": is not a regular file but a pipe (FIFO)") != std::string::npos);
+      CHECK(slurp(dir / "answer.csv") == answer);
+      CHECK_FALSE(fs::exists(dir / "report" / "report.md"));
+    }
+    fs::remove(file);
+    write(file, kept);
+  }
+
+  fs::remove(dir / "manifest.json");
+  fs::remove(dir / "units.journal");
+  write(dir / "study.resolved.yaml", slurp(dir / "study.resolved.yaml") + "# edited\n");
+  for (const std::string command : {"answer", "report"}) {
+    const Result r = run(command + " " + dir.string());
+    INFO(command << ":\n" << r.out);
+    CHECK(r.code == 2);
+    CHECK(r.out.find("error: " + dir.string() + ": has no manifest.json") != std::string::npos);
+    CHECK(slurp(dir / "answer.csv") == answer);
+  }
 }

@@ -3,23 +3,18 @@
 // same runs.csv and answer.csv as an uninterrupted run; a torn last journal record is dropped and
 // its unit computed again; a damaged record before the last is an error. Hardening: a flipped bit
 // anywhere in a record (its unit index included), a record holding another unit's rows, and a
-// journal of another study are refused with exit code 2 and nothing written; of two plans racing
-// for one new directory exactly one claims it.
+// journal of another study are refused with exit code 2 and nothing written; so are a symbolic
+// link named units.journal (nothing is written through it) and a pipe (refused at once, not waited
+// on); of two plans racing for one new directory exactly one claims it.
 #include <catch2/catch.hpp>
-#include <fcntl.h>
-#include <spawn.h>
-#include <sys/wait.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
-#include <chrono>
 #include <csignal>
-#include <thread>
 
 #include "cli_harness.hpp"
 #include "io/journal.hpp"
 #include "io/run_directory.hpp"
-
-extern char** environ;
 
 using namespace cli_test;
 
@@ -42,84 +37,21 @@ targets: { model_kl: 0.05 }
 )";
 constexpr std::size_t medium_units = 4 * 20;
 
-// Starts the binary with `args`, stdout and stderr to `log`; returns its process id.
-pid_t spawn(const std::vector<std::string>& args, const fs::path& log) {
-  std::vector<std::string> all{DOBUDGET_BINARY};
-  all.insert(all.end(), args.begin(), args.end());
-  std::vector<char*> argv;
-  for (auto& a : all) argv.push_back(a.data());
-  argv.push_back(nullptr);
-  posix_spawn_file_actions_t actions;
-  posix_spawn_file_actions_init(&actions);
-  posix_spawn_file_actions_addopen(&actions, 1, log.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-  posix_spawn_file_actions_adddup2(&actions, 1, 2);
-  pid_t pid = -1;
-  const int rc = posix_spawn(&pid, DOBUDGET_BINARY, &actions, nullptr, argv.data(), environ);
-  posix_spawn_file_actions_destroy(&actions);
-  REQUIRE(rc == 0);
-  return pid;
-}
-
-// Lines after the header line.
-std::size_t finished_records(const fs::path& journal) {
-  if (!fs::exists(journal)) return 0;
-  const std::string text = slurp(journal);
-  const auto lines = static_cast<std::size_t>(std::count(text.begin(), text.end(), '\n'));
-  return lines > 0 ? lines - 1 : 0;
-}
-
-// Waits until `journal` holds at least one finished unit (the child still running); false if the
-// child ended first or nothing came within 60 s.
-bool wait_for_first_unit(pid_t pid, const fs::path& journal) {
-  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(60);
-  while (std::chrono::steady_clock::now() < deadline) {
-    if (finished_records(journal) >= 1) return true;
-    int status = 0;
-    if (::waitpid(pid, &status, WNOHANG) == pid) return false;
-    std::this_thread::sleep_for(std::chrono::milliseconds(2));
-  }
-  return false;
-}
-
-struct Exit {
-  bool signalled = false;
-  int code = -1;  // exit code, or signal number when signalled
-};
-
-Exit wait_for(pid_t pid) {
-  int status = 0;
-  ::waitpid(pid, &status, 0);
-  if (WIFSIGNALED(status)) return {true, WTERMSIG(status)};
-  return {false, WIFEXITED(status) ? WEXITSTATUS(status) : -1};
-}
-
-// Units intact in a journal, and whether its last record is torn.
-std::pair<std::size_t, bool> journal_state(const fs::path& journal) {
-  std::size_t intact = 0;
-  bool torn = false;
-  const auto units = dobudget::io::Journal::parse(slurp(journal), &intact, &torn);
-  return {units.size(), torn};
-}
+// tiny_study cut to one unit (one draw, one replicate, one budget pair): quick to run many times.
+const char* one_unit_study = R"(name: one-unit
+seed: 7
+environment: { states: 3, actions: 2, observations: 2, horizon: 4, draws: 1,
+               dynamics_concentration: 0.2, observation_noise: 0.1 }
+logging: { privilege: 1.0, temperature: 0.1 }
+budgets: { logged: [60], pilot: [5] }
+replicates: 1
+fit: { restarts: 2, max_iterations: 40 }
+evaluation: { trajectories: 50 }
+targets: { model_kl: 0.05 }
+)";
 
 // What plan's last line says of units found finished in the journal.
 std::string fmt_resumed(std::size_t n) { return "(" + std::to_string(n) + " resumed)"; }
-
-std::vector<std::string> lines(const std::string& text) {
-  std::vector<std::string> out;
-  std::size_t pos = 0;
-  while (pos < text.size()) {
-    const auto nl = text.find('\n', pos);
-    out.push_back(text.substr(pos, nl - pos));
-    pos = nl == std::string::npos ? text.size() : nl + 1;
-  }
-  return out;
-}
-
-std::string join_lines(const std::vector<std::string>& ls) {
-  std::string s;
-  for (const auto& l : ls) s += l + "\n";
-  return s;
-}
 
 }  // namespace
 
@@ -135,7 +67,7 @@ TEST_CASE("resume: a run killed part-way (SIGKILL) resumes and ends identical to
                                       "--out", (s / "run").string()};
   const fs::path journal = s / "run" / "units.journal";
   const pid_t pid = spawn(args, s / "killed.log");
-  const bool started = wait_for_first_unit(pid, journal);
+  const bool started = wait_for_units(pid, journal, 1);
   ::kill(pid, SIGKILL);
   const Exit e = wait_for(pid);
   INFO(slurp(s / "killed.log"));
@@ -168,7 +100,7 @@ TEST_CASE("resume: SIGINT stops cleanly with exit code 130 after recording finis
                                       (s / "run").string()};
   const fs::path journal = s / "run" / "units.journal";
   const pid_t pid = spawn(args, s / "interrupted.log");
-  const bool started = wait_for_first_unit(pid, journal);
+  const bool started = wait_for_units(pid, journal, 1);
   ::kill(pid, SIGINT);
   const Exit e = wait_for(pid);
   const std::string log = slurp(s / "interrupted.log");
@@ -361,11 +293,13 @@ TEST_CASE("resume: a journal of another study, or without its header, is refused
 TEST_CASE("resume: of two plans of different studies started together on one new directory, exactly one wins",
           "[cli][resume][race]") {
   // The reproduced bug: in 7-10% of tries one process wrote its units under the other study's
-  // study.resolved.yaml. Tiny studies, so that the 20 tries take a few seconds.
+  // study.resolved.yaml. 60 tries: were the bug back, all would pass with probability at most
+  // 0.93^60 = 1.3% (20 tries let it through 12-23% of the time). One-unit studies, so that the
+  // tries take a few seconds.
   Scratch s("race");
   const std::vector<std::string> names{"a", "b"};
-  write(s / "a.yaml", tiny_study);
-  std::string b = tiny_study;
+  write(s / "a.yaml", one_unit_study);
+  std::string b = one_unit_study;
   b.replace(b.find("seed: 7"), 7, "seed: 8");  // other rows
   write(s / "b.yaml", b);
   std::vector<std::string> ref_runs, ref_resolved;
@@ -379,7 +313,8 @@ TEST_CASE("resume: of two plans of different studies started together on one new
   REQUIRE(ref_runs[0] != ref_runs[1]);
 
   int a_won = 0, b_won = 0;
-  for (int trial = 0; trial < 20; ++trial) {
+  constexpr int tries = 60;
+  for (int trial = 0; trial < tries; ++trial) {
     const fs::path out = s / ("race-" + std::to_string(trial));
     std::vector<pid_t> pids;
     for (const auto& n : names)
@@ -403,5 +338,33 @@ TEST_CASE("resume: of two plans of different studies started together on one new
     CHECK(run("answer " + out.string()).code == 0);
   }
   INFO("a won " << a_won << ", b won " << b_won);
-  CHECK(a_won + b_won == 20);
+  CHECK(a_won + b_won == tries);
+}
+
+TEST_CASE("resume: a symbolic link or a pipe named units.journal is refused at once, nothing written through it",
+          "[cli][resume][journal]") {
+  // The reproduced bugs: with `ln -s victim units.journal`, plan appended the header and every record
+  // to the victim and exited 0; with a pipe (mkfifo) it blocked in open(2), deaf to SIGTERM.
+  Scratch s("journal-kind");
+  write(s / "study.yaml", tiny_study);
+  const fs::path victim = s / "victim";
+  write(victim, "");
+  fs::create_directories(s / "sym");
+  fs::create_symlink(victim, s / "sym" / "units.journal");
+  Result r = run_within(60, "plan " + (s / "study.yaml").string() + " --quiet --out " + (s / "sym").string());
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK(r.out.find("error: " + (s / "sym" / "units.journal").string() + ": is a symbolic link") != std::string::npos);
+  CHECK(slurp(victim).empty());
+  CHECK_FALSE(fs::exists(s / "sym" / "study.resolved.yaml"));  // nothing half-written either
+  CHECK_FALSE(fs::exists(s / "sym" / "runs.csv"));
+
+  fs::create_directories(s / "fifo");
+  REQUIRE(::mkfifo((s / "fifo" / "units.journal").c_str(), 0644) == 0);
+  r = run_within(20, "plan " + (s / "study.yaml").string() + " --quiet --out " + (s / "fifo").string());
+  INFO(r.out);
+  CHECK(r.code == 2);  // not 137: it did not hang until killed
+  CHECK(r.out.find("error: " + (s / "fifo" / "units.journal").string() + ": is not a regular file but a pipe (FIFO)") !=
+        std::string::npos);
+  CHECK_FALSE(fs::exists(s / "fifo" / "study.resolved.yaml"));
 }

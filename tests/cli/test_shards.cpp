@@ -3,6 +3,7 @@
 // any thread count, and merge refuses inputs that are not exactly one study's units, once each,
 // with exit code 2, a message naming what is wrong, and nothing written at --out.
 #include <catch2/catch.hpp>
+#include <sys/stat.h>
 
 #include <algorithm>
 
@@ -287,4 +288,51 @@ TEST_CASE("merge: applies the journal's checks to every input: its study, each r
   CHECK(r.code == 0);
   CHECK(r.out.find("(6 resumed)") != std::string::npos);
   CHECK(slurp(s / "merged" / "runs.csv") == runs);
+}
+
+TEST_CASE("merge: a pipe in place of an input's or --out's units.journal is refused at once; a link at --out is "
+          "replaced, never written through",
+          "[cli][merge][journal]") {
+  // The reproduced bug: with a pipe (mkfifo) as units.journal, merge blocked (in Journal::in_use,
+  // and in reading the journal's header).
+  Scratch s("merge-kinds");
+  write(s / "study.yaml", tiny_study);
+  plan(s, "study.yaml", "whole", "--threads 1");
+  const std::string journal = slurp(s / "whole" / "units.journal");
+
+  // An input whose journal is a pipe.
+  fs::copy(s / "whole", s / "input", fs::copy_options::recursive);
+  fs::remove(s / "input" / "units.journal");
+  REQUIRE(::mkfifo((s / "input" / "units.journal").c_str(), 0644) == 0);
+  Result r = run_within(20, "merge " + (s / "input").string() + " --out " + (s / "merged").string());
+  INFO(r.out);
+  CHECK(r.code == 2);  // not 137: it did not hang until killed
+  CHECK(r.out.find("error: " + (s / "input" / "units.journal").string() + ": is not a regular file but a pipe (FIFO)") !=
+        std::string::npos);
+  CHECK_FALSE(fs::exists(s / "merged"));
+
+  // An --out of this study whose journal is a pipe.
+  fs::create_directories(s / "out");
+  fs::copy(s / "whole" / "study.resolved.yaml", s / "out" / "study.resolved.yaml");
+  REQUIRE(::mkfifo((s / "out" / "units.journal").c_str(), 0644) == 0);
+  r = run_within(20, "merge " + (s / "whole").string() + " --out " + (s / "out").string());
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK(r.out.find("error: " + (s / "out" / "units.journal").string() + ": is not a regular file but a pipe (FIFO)") !=
+        std::string::npos);
+  CHECK_FALSE(fs::exists(s / "out" / "runs.csv"));
+
+  // An --out whose units.journal is a link to an empty file elsewhere: merge writes the directory,
+  // and its journal replaces the link (write_file_atomically renames over the name); the file the
+  // link pointed at is left empty.
+  const fs::path victim = s / "victim";
+  write(victim, "");
+  fs::create_directories(s / "linked");
+  fs::create_symlink(victim, s / "linked" / "units.journal");
+  r = run_within(60, "merge " + (s / "whole").string() + " --out " + (s / "linked").string());
+  INFO(r.out);
+  CHECK(r.code == 0);
+  CHECK(slurp(victim).empty());
+  CHECK_FALSE(fs::is_symlink(fs::symlink_status(s / "linked" / "units.journal")));
+  CHECK(slurp(s / "linked" / "units.journal") == journal);
 }

@@ -2,19 +2,17 @@
 // about a second, not after the unit in progress) and of the limits `plan` and `check` apply
 // before anything is written: the estimated cost (--max-core-hours) and the estimated memory.
 #include <catch2/catch.hpp>
-#include <fcntl.h>
-#include <spawn.h>
-#include <sys/wait.h>
-#include <unistd.h>
+
+#include <fmt/format.h>
 
 #include <chrono>
+#include <cmath>
 #include <csignal>
+#include <regex>
+#include <sstream>
 #include <thread>
 
 #include "cli_harness.hpp"
-#include "io/journal.hpp"
-
-extern char** environ;
 
 using namespace cli_test;
 
@@ -40,49 +38,6 @@ sweep:
   planner.rollouts: [100, 3000000]
 )";
 
-pid_t spawn(const std::vector<std::string>& args, const fs::path& log) {
-  std::vector<std::string> all{DOBUDGET_BINARY};
-  all.insert(all.end(), args.begin(), args.end());
-  std::vector<char*> argv;
-  for (auto& a : all) argv.push_back(a.data());
-  argv.push_back(nullptr);
-  posix_spawn_file_actions_t actions;
-  posix_spawn_file_actions_init(&actions);
-  posix_spawn_file_actions_addopen(&actions, 1, log.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0644);
-  posix_spawn_file_actions_adddup2(&actions, 1, 2);
-  pid_t pid = -1;
-  const int rc = posix_spawn(&pid, DOBUDGET_BINARY, &actions, nullptr, argv.data(), environ);
-  posix_spawn_file_actions_destroy(&actions);
-  REQUIRE(rc == 0);
-  return pid;
-}
-
-// Intact units in a journal, and whether its last record is torn.
-std::pair<std::size_t, bool> journal_state(const fs::path& journal) {
-  std::size_t intact = 0;
-  bool torn = false;
-  const auto units = dobudget::io::Journal::parse(slurp(journal), &intact, &torn);
-  return {units.size(), torn};
-}
-
-// Waits until the journal holds `n` units while the child runs; false if it ended first or 60 s passed.
-bool wait_for_units(pid_t pid, const fs::path& journal, std::size_t n) {
-  const auto deadline = Clock::now() + std::chrono::seconds(60);
-  while (Clock::now() < deadline) {
-    if (fs::exists(journal) && journal_state(journal).first >= n) return true;
-    int status = 0;
-    if (::waitpid(pid, &status, WNOHANG) == pid) return false;
-    std::this_thread::sleep_for(std::chrono::milliseconds(5));
-  }
-  return false;
-}
-
-int exit_code(pid_t pid) {
-  int status = 0;
-  ::waitpid(pid, &status, 0);
-  return WIFEXITED(status) ? WEXITSTATUS(status) : -1;
-}
-
 }  // namespace
 
 TEST_CASE("stop: SIGTERM during a long unit exits 130 at once, journals only whole units, and a rerun resumes "
@@ -101,7 +56,7 @@ TEST_CASE("stop: SIGTERM during a long unit exits 130 at once, journals only who
   std::this_thread::sleep_for(std::chrono::seconds(1));           // well inside scenario 1's work
   const auto sent = Clock::now();
   REQUIRE(::kill(cut, SIGTERM) == 0);
-  const int code = exit_code(cut);
+  const int code = wait_for(cut).code;
   const double seconds = std::chrono::duration<double>(Clock::now() - sent).count();
   INFO(slurp(s / "cut.log"));
   CHECK(code == 130);
@@ -118,7 +73,7 @@ TEST_CASE("stop: SIGTERM during a long unit exits 130 at once, journals only who
   INFO(rerun.out);
   CHECK(rerun.code == 0);
   CHECK_THAT(rerun.out, Catch::Contains("(1 resumed)"));
-  REQUIRE(exit_code(full) == 0);
+  REQUIRE(wait_for(full).code == 0);
   CHECK(slurp(s / "cut" / "runs.csv") == slurp(s / "full" / "runs.csv"));
 }
 
@@ -131,7 +86,7 @@ TEST_CASE("stop: SIGINT is honoured as promptly as SIGTERM", "[cli][stop]") {
   std::this_thread::sleep_for(std::chrono::milliseconds(500));
   const auto sent = Clock::now();
   REQUIRE(::kill(cut, SIGINT) == 0);
-  const int code = exit_code(cut);
+  const int code = wait_for(cut).code;
   CHECK(code == 130);
   CHECK(std::chrono::duration<double>(Clock::now() - sent).count() < 5.0);
   CHECK(journal_state(s / "cut" / "units.journal") == std::pair<std::size_t, bool>{1, false});
@@ -180,8 +135,9 @@ TEST_CASE("check and plan refuse a study whose estimated memory exceeds the mach
         run(command + " " + (s / "huge.yaml").string() + (command == "plan" ? " --out " + (s / "run").string() : ""));
     INFO(r.out);
     CHECK(r.code == 2);
-    CHECK_THAT(r.out, Catch::Contains("huge.yaml: budgets.pilot: the estimated peak memory") &&
-                          Catch::Contains("driven by budgets.pilot, budgets.logged, environment.horizon"));
+    CHECK_THAT(r.out, Catch::Contains("huge.yaml:3: budgets.pilot: the estimated peak memory") &&
+                          Catch::Contains("driven by budgets.pilot (10000000 episodes, the largest budget), "
+                                          "environment.horizon (5000)"));
     CHECK_FALSE(fs::exists(s / "run"));
   }
   // check prints the estimate of a study it accepts.
@@ -189,6 +145,107 @@ TEST_CASE("check and plan refuse a study whose estimated memory exceeds the mach
   const Result ok = run("check " + (s / "tiny.yaml").string());
   CHECK(ok.code == 0);
   CHECK_THAT(ok.out, Catch::Contains("# estimated peak memory: ") && Catch::Contains("# cost from counts"));
+}
+
+TEST_CASE("check and plan refuse within the address-space limit (ulimit -v), and a grid of 10^4 budgets at once",
+          "[cli][stop]") {
+  Scratch s("memory-rlimit");
+  // One unit of 10^7 pilot episodes of horizon 20: about 1.6 GB of data, above an address-space
+  // limit of 1 GB and below the physical memory of any machine that runs the tests.
+  cli_test::write(s / "big.yaml", "name: big\nenvironment: { horizon: 20 }\nbudgets: { pilot: [5, 10000000] }\n");
+  const Result r = run_command("ulimit -v 1000000; " + std::string(DOBUDGET_BINARY) + " plan " + (s / "big.yaml").string() +
+                               " --threads 1 --out " + (s / "run").string());
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK_THAT(r.out, Catch::Contains("big.yaml:3: budgets.pilot: the estimated peak memory") &&
+                        Catch::Contains("is more than the 1.02 GB this process may use (the address-space limit, "
+                                        "ulimit -v)"));
+  CHECK_FALSE(fs::exists(s / "run"));
+  // The review's 98 KB study: pilot [1..10000], logged [0..9999]. Before, `check` under ulimit -v
+  // 4000000 ran 50 s and ended in "internal error: std::bad_alloc" (exit 1).
+  std::string pilot = "[", logged = "[";
+  for (int i = 0; i < 10000; ++i) {
+    pilot += (i ? ", " : "") + std::to_string(i + 1);
+    logged += (i ? ", " : "") + std::to_string(i);
+  }
+  cli_test::write(s / "grid.yaml", "name: grid\nbudgets:\n  pilot: " + pilot + "]\n  logged: " + logged + "]\n");
+  const auto start = Clock::now();
+  const Result grid = run_command("ulimit -v 4000000; " + std::string(DOBUDGET_BINARY) + " check " + (s / "grid.yaml").string());
+  INFO(grid.out);
+  CHECK(grid.code == 2);
+  CHECK_THAT(grid.out, Catch::Contains("grid.yaml:4: budgets.logged: lists 10000 budgets"));
+  CHECK(std::chrono::duration<double>(Clock::now() - start).count() < 20.0);  // a generous functional bound
+}
+
+TEST_CASE("plan refuses a run whose cost bound is above --max-core-hours although its typical estimate is not",
+          "[cli][stop]") {
+  Scratch s("cost-bound");
+  // The tiny study with a cap of 10^5 E-steps: its bound (every start to the cap) is 1000 times its
+  // typical estimate (100 E-steps a start). Read both from `check`, then set a limit between them.
+  std::string study = tiny_study;
+  study.replace(study.find("max_iterations: 40"), 18, "max_iterations: 100000");
+  cli_test::write(s / "capped.yaml", study);
+  const Result check = run("check " + (s / "capped.yaml").string());
+  REQUIRE(check.code == 0);
+  std::smatch m;
+  REQUIRE(std::regex_search(check.out, m, std::regex("about ([0-9.e+-]+) core-hours, at most ([0-9.e+-]+)")));
+  const double typical = std::stod(m[1]), most = std::stod(m[2]);
+  REQUIRE(most > 100.0 * typical);
+  const std::string limit = fmt::format("{}", std::sqrt(typical * most));
+  const Result r = run("plan " + (s / "capped.yaml").string() + " --out " + (s / "run").string() + " --max-core-hours " + limit);
+  INFO(r.out);
+  CHECK(r.code == 2);
+  CHECK_THAT(r.out, Catch::Contains("error: --max-core-hours: the estimated cost of this run, about") &&
+                        Catch::Contains("could reach") && Catch::Contains("if every start of every fit runs to "
+                                                                          "fit.max_iterations"));
+  CHECK_FALSE(fs::exists(s / "run"));
+  // The review's case: units of 10 restarts that cannot converge (tolerance 1e-300), at the largest
+  // cap, 10^5. 1000 units: typically about 2.4 core-hours, at most about 2400. Before, `plan`
+  // compared only the typical estimate with the limit, and started (each unit then took minutes).
+  cli_test::write(s / "stuck.yaml", "name: stuck\nenvironment: { draws: 20 }\nreplicates: 50\n"
+                                    "fit: { restarts: 10, max_iterations: 100000, tolerance: 1e-300 }\n");
+  const Result stuck = run_command("timeout 60 " + std::string(DOBUDGET_BINARY) + " plan " + (s / "stuck.yaml").string() +
+                                   " --out " + (s / "stuck").string());
+  INFO(stuck.out);
+  CHECK(stuck.code == 2);
+  CHECK_THAT(stuck.out, Catch::Contains("which is above the limit of 1000 core-hours"));
+  CHECK_FALSE(fs::exists(s / "stuck"));
+}
+
+TEST_CASE("plan on a resumed directory states and limits the cost of the units still to do", "[cli][stop]") {
+  Scratch s("cost-resume");
+  cli_test::write(s / "tiny.yaml", tiny_study);
+  const std::string study = (s / "tiny.yaml").string();
+  REQUIRE(run("plan " + study + " --out " + (s / "full").string() + " --threads 1").code == 0);
+  // Finished: nothing left, so nothing to refuse. Before, this said "for 6 units" and a limit of
+  // 1e-9 core-hours refused the directory.
+  const Result again = run("plan " + study + " --out " + (s / "full").string() + " --max-core-hours 1e-9");
+  INFO(again.out);
+  CHECK(again.code == 0);
+  CHECK_THAT(again.out, Catch::Contains("for 0 units still to do (6 finished before); limit 1e-09"));
+
+  // Part done: the journal's header and 4 of its 6 records.
+  fs::create_directories(s / "part");
+  fs::copy_file(s / "full" / "study.resolved.yaml", s / "part" / "study.resolved.yaml");
+  std::istringstream lines(slurp(s / "full" / "units.journal"));
+  std::string journal;
+  for (int k = 0; k < 5; ++k) {
+    std::string line;
+    REQUIRE(std::getline(lines, line));
+    journal += line + "\n";
+  }
+  cli_test::write(s / "part" / "units.journal", journal);
+  const Result low = run("plan " + study + " --out " + (s / "part").string() + " --max-core-hours 1e-9");
+  INFO(low.out);
+  CHECK(low.code == 2);
+  CHECK_THAT(low.out, Catch::Contains("error: --max-core-hours: the estimated cost of this run"));
+  CHECK(slurp(s / "part" / "units.journal") == journal);  // no unit computed
+  CHECK_FALSE(fs::exists(s / "part" / "runs.csv"));
+  const Result rest = run("plan " + study + " --out " + (s / "part").string() + " --threads 1");
+  INFO(rest.out);
+  CHECK(rest.code == 0);
+  CHECK_THAT(rest.out, Catch::Contains("for 2 units still to do (4 finished before); limit 1000"));
+  CHECK(slurp(s / "part" / "runs.csv") == slurp(s / "full" / "runs.csv"));
 }
 
 TEST_CASE("extreme numbers: a reward of 1e308 and a budget of 2^31 - 1 are refused, never a crash or a negative cost",

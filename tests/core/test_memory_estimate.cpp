@@ -32,10 +32,10 @@ Study me_study(bool return_gap) {
   return st;
 }
 
-double part(const std::vector<MemoryPart>& parts, const std::string& what) {
+double part(const std::vector<MemoryPart>& parts, MemoryPartId id) {
   for (const auto& p : parts)
-    if (p.what == what) return p.bytes;
-  FAIL("no part " << what);
+    if (p.id == id) return p.bytes;
+  FAIL("no part " << static_cast<int>(id));
   return 0.0;
 }
 
@@ -46,19 +46,19 @@ TEST_CASE("memory estimate: a tiny case counted by hand", "[memory_estimate]") {
   const std::vector<MemoryPart> parts = unit_memory(st.scenarios[0].settings);
   // Hand count (the formulas of memory_estimate.hpp, evaluated on paper for this case):
   //   datasets: (10 + 20) episodes x (2 x 4 + 1) int32 = 30 x 9 x 4 = 1080
-  CHECK(part(parts, "datasets") == 1080.0);
+  CHECK(part(parts, MemoryPartId::datasets) == 1080.0);
   //   evaluation: 7 x 9 x 4 = 252 int32 bytes, plus 3 x 7 x 5 x 3 doubles = 315 x 8 = 2520 -> 2772
-  CHECK(part(parts, "evaluation histories") == 2772.0);
+  CHECK(part(parts, MemoryPartId::evaluation_histories) == 2772.0);
   //   n = Z + A Z^2 + Z O + Z A = 2 + 8 + 6 + 4 = 20 parameters;
   //   fit: 15 x 20 x 8 = 2400, tables 2 x 2 x 3 x 4 x 8 = 384, alpha (5 x 3) x 8 = 120 -> 2904
-  CHECK(part(parts, "model fit") == 2904.0);
+  CHECK(part(parts, MemoryPartId::model_fit) == 2904.0);
   //   fits per unit: pilot-only x {5, 10}, pooled and regime-aware x 20 x {5, 10} = 6 -> 6 x 20 x 8 = 960
   CHECK(fits_per_unit(st.scenarios[0].settings) == 6);
-  CHECK(part(parts, "fitted models kept") == 960.0);
+  CHECK(part(parts, MemoryPartId::fitted_models_kept) == 960.0);
   //   plan_bytes(K = 2): 3 x 4 x 6 x 2 x 8 = 1152; workspace (6 (6 + 3 + 2 + 6) + 2 x 6) x 8 = 912;
   //   kstar 6 x 2 x 3 x 4 = 144 -> 2208; plus 3 x 9 rollouts x 8 = 216 -> 2424 (fitted), 2208 (true)
-  CHECK(part(parts, "planner (fitted model)") == 2424.0);
-  CHECK(part(parts, "planner (true model)") == 2208.0);
+  CHECK(part(parts, MemoryPartId::planner_fitted) == 2424.0);
+  CHECK(part(parts, MemoryPartId::planner_true) == 2208.0);
 
   const MemoryEstimate m = estimate_memory(st, 4);
   const double unit = 1080.0 + 2772.0 + 2904.0 + 960.0 + 2424.0 + 2208.0;
@@ -73,20 +73,40 @@ TEST_CASE("memory estimate: a tiny case counted by hand", "[memory_estimate]") {
   CHECK(unit_memory(me_study(false).scenarios[0].settings).size() == 4);
 }
 
-TEST_CASE("memory estimate: the refusal names the part and keys that drive it", "[memory_estimate]") {
+TEST_CASE("memory estimate: the largest part and the settings it grows with", "[memory_estimate]") {
   Study st = me_study(false);
   st.scenarios[0].settings.pilot_budgets = {5, 10000000};
   st.scenarios[0].settings.environment.horizon = 5000;
   const MemoryEstimate m = estimate_memory(st, 2);
-  CHECK(m.largest().what == "datasets");
-  CHECK(m.peak_bytes > 2.0 * 1e7 * 10001 * 4);  // two units' pilot data alone: 800 GB
-  const std::string refusal = memory_refusal(m, 16e9);
-  CHECK_THAT(refusal, Catch::Contains("more than this machine's 16 GB") && Catch::Contains("budgets.pilot"));
-  CHECK(memory_refusal(m, 0.0).empty());    // unknown machine memory: no refusal
-  CHECK(memory_refusal(m, 1e15).empty());   // enough memory
-  CHECK(physical_memory_bytes() > 0.0);
-  CHECK(format_bytes(1.5e9) == "1.5 GB");
-  CHECK(format_bytes(999) == "999 bytes");
+  const MemoryPart big = m.largest();
+  CHECK(big.id == MemoryPartId::datasets);
+  CHECK(big.bytes == 2.0 * (1e7 + 20) * 10001 * 4);  // two units at once: 800 GB
+  CHECK(m.peak_bytes > big.bytes);
+  REQUIRE(big.drivers.size() == 3);
+  CHECK((big.drivers[0].driver == Driver::pilot_budget && big.drivers[0].value == 1e7));
+  CHECK((big.drivers[1].driver == Driver::logged_budget && big.drivers[1].value == 20));
+  CHECK((big.drivers[2].driver == Driver::horizon && big.drivers[2].value == 5000));
+
+  // Many units of many rows: the results kept drive it, with the counts that make them.
+  Study rows = me_study(false);
+  rows.scenarios[0].settings.environment.draws = 1000;
+  rows.scenarios[0].settings.replicates = 2000;
+  rows.scenarios[0].settings.pilot_budgets.resize(100);
+  for (int i = 0; i < 100; ++i) rows.scenarios[0].settings.pilot_budgets[i] = i + 1;
+  const MemoryEstimate r = estimate_memory(rows, 2);
+  CHECK(r.largest().id == MemoryPartId::results);
+  CHECK(r.results.bytes == 2e6 * 3 * 2 * 100 * bytes_per_row());
+  const auto value = [&](Driver d) {
+    for (const DriverValue& v : r.results.drivers)
+      if (v.driver == d) return v.value;
+    return -1.0;
+  };
+  CHECK(value(Driver::scenarios) == 1);
+  CHECK(value(Driver::draws) == 1000);
+  CHECK(value(Driver::replicates) == 2000);
+  CHECK(value(Driver::strategy_count) == 3);
+  CHECK(value(Driver::logged_budget_count) == 2);
+  CHECK(value(Driver::pilot_budget_count) == 100);
 }
 
 TEST_CASE("cost bound: counts in double, never negative, monotone in the budgets", "[cost_estimate]") {

@@ -2,10 +2,13 @@
 // sizes at the edges.
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <cmath>
 #include <string>
+#include <tuple>
 #include <vector>
 
+#include "core/cost_estimate.hpp"
 #include "core/dataset.hpp"
 #include "core/fit.hpp"
 #include "core/model_kl.hpp"
@@ -209,4 +212,60 @@ TEST_CASE("unit: one action, and latent size different from the true state count
     REQUIRE(again.size() == rows.size());
     for (std::size_t i = 0; i < rows.size(); ++i) CHECK(un_same_row(rows[i], again[i]));
   }
+}
+
+// fits_per_unit (unit.hpp) is a closed form; the reference is what run_unit actually shares: rows
+// of one fit carry the same fit (log-likelihood, iterations and the fit's measured seconds), rows of
+// different fits differ in the log-likelihood (different data or model). For every subset of the
+// strategies and logged lists with and without 0, the closed forms of fits_per_unit and
+// observations_per_unit (cost_estimate.hpp) equal the distinct fits of run_unit's rows and the
+// observations those fits saw (a fit of pilot-only or logged 0 sees n pilot episodes, else n + L).
+TEST_CASE("unit: fits_per_unit and observations_per_unit in closed form count the fits run_unit shares", "[unit]") {
+  const std::vector<std::vector<Strategy>> strategy_sets{
+      {Strategy::pilot_only},
+      {Strategy::pooled},
+      {Strategy::regime_aware},
+      {Strategy::pilot_only, Strategy::pooled},
+      {Strategy::regime_aware, Strategy::pilot_only},
+      {Strategy::pooled, Strategy::regime_aware},
+      {Strategy::pilot_only, Strategy::pooled, Strategy::regime_aware}};
+  const std::vector<std::vector<int>> logged_sets{{0}, {0, 15}, {15}, {10, 25}, {0, 10, 25}};
+  for (const auto& strategies : strategy_sets)
+    for (const auto& logged : logged_sets) {
+      Study st = un_study(2, 2, 2, 3, 2);
+      ScenarioSettings& s = st.scenarios[0].settings;
+      s.strategies = strategies;
+      s.logged_budgets = logged;
+      s.pilot_budgets = {4, 9};
+      s.fit.restarts = 1;
+      s.fit.max_iterations = 5;
+      s.evaluation.trajectories = 5;
+      const std::vector<RunRecord> rows = run_unit(st, {0, 0, 0}, make_draw_context(st, 0, 0));
+      // Distinct fits, each with the episodes its data holds.
+      std::vector<std::tuple<double, int, double>> fits;
+      double episodes = 0.0;
+      for (const RunRecord& r : rows) {
+        const std::tuple<double, int, double> id{r.loglik, r.iterations, r.fit_seconds};
+        if (std::find(fits.begin(), fits.end(), id) != fits.end()) continue;
+        fits.push_back(id);
+        episodes += r.pilot + (r.strategy == Strategy::pilot_only ? 0 : r.logged);
+      }
+      INFO("strategies " << strategies.size() << ", logged budgets " << logged.size() << " from " << logged.front());
+      CHECK(fits_per_unit(s) == static_cast<long long>(fits.size()));
+      CHECK(observations_per_unit(s) == episodes * (s.environment.horizon + 1));
+    }
+}
+
+TEST_CASE("unit: fits_per_unit counts 10^5 x 10^5 budgets at once, in 64 bits", "[unit]") {
+  // Before, a std::map of strategies x logged x pilot keys was filled (3 x 10^10 here: gigabytes,
+  // then std::bad_alloc), and the count, returned as int, would wrap.
+  ScenarioSettings s;
+  s.pilot_budgets.resize(100000);
+  s.logged_budgets.resize(100000);
+  for (int i = 0; i < 100000; ++i) s.pilot_budgets[i] = i + 1, s.logged_budgets[i] = i;  // logged from 0
+  // 10^5 pilot-only fits (shared by logged 0), and 2 strategies x (10^5 - 1) logged x 10^5 pilot.
+  CHECK(fits_per_unit(s) == 100000LL + 2LL * 99999 * 100000);
+  // Sum of pilot budgets S_P = 10^5 (10^5 + 1) / 2, of logged L+ = 99999 x 10^5 / 2 (exact in double).
+  const double SP = 5000050000.0, SL = 4999950000.0;
+  CHECK(observations_per_unit(s) == (SP + 2.0 * (99999.0 * SP + 100000.0 * SL)) * (s.environment.horizon + 1));
 }

@@ -237,7 +237,7 @@ TEST_CASE("answer table: worst case over scenarios takes the largest need, unkno
 }
 
 TEST_CASE("answer.md: a hostile study name and labels are shown literally, on one line", "[answer_table]") {
-  // User text goes through markdown_text / markdown_cell (text_escape.hpp): CommonMark 0.31.2,
+  // User text goes through markdown_text (text_escape.hpp): CommonMark 0.31.2,
   // sections 2.4 and 2.5; GFM spec 0.29, section 4.10 for the pipe in a table cell.
   const std::string name = "x`touch PWNED`y\n# injected](http://e)<script>";
   const std::string md =

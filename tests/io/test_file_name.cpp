@@ -15,14 +15,20 @@ TEST_CASE("safe_file_name keeps plain names and makes every other name one harml
   CHECK(safe_file_name("../../escaped") == "escaped");
   CHECK(safe_file_name("/etc/passwd") == "etc-passwd");
   CHECK(safe_file_name("a/../b") == "a-..-b");
-  CHECK(safe_file_name("..") == "study");
+  CHECK(safe_file_name("..").rfind("study-", 0) == 0);
   CHECK(safe_file_name(".hidden") == "hidden");
   CHECK(safe_file_name("--help") == "help");
   CHECK(safe_file_name("x`touch PWNED`y") == "x-touch-PWNED-y");
   CHECK(safe_file_name("C:\\temp\\x") == "C-temp-x");
   CHECK(safe_file_name("Gew\xc3\xa4" "chshaus") == "Gew-chshaus");
   CHECK(safe_file_name("") == "study");
-  CHECK(safe_file_name("///") == "study");
+  CHECK(safe_file_name("///").rfind("study-", 0) == 0);
+  // Names with nothing left still get directories of their own: "study-" and 8 hex digits.
+  const std::string greenhouse = safe_file_name("\xe6\xb8\xa9\xe5\xae\xa4"), orchard = safe_file_name("\xe6\x9e\x9c\xe5\x9b\xad");
+  CHECK(greenhouse.size() == 14);
+  CHECK(greenhouse.rfind("study-", 0) == 0);
+  CHECK(greenhouse != orchard);
+  CHECK(greenhouse == safe_file_name("\xe6\xb8\xa9\xe5\xae\xa4"));
   CHECK(safe_file_name(std::string(300, 'a')).size() == 80);
   // Whatever the input, the result is one path component that is neither "." nor "..".
   for (const std::string& s : std::vector<std::string>{"/", "\\", ". .", "-.-", "a\nb", std::string("\0x", 2)}) {

@@ -217,3 +217,52 @@ TEST_CASE("finished run: a runs.csv far larger than the study's rows is refused 
   CHECK(e.line == 0);
   CHECK_THAT(e.message, Catch::Contains("far more than the study's 48 rows can fill"));
 }
+
+TEST_CASE("finished run: a directory where nothing records the planned study hash is refused, edited or not",
+          "[io][finished_run]") {
+  // The reproduced bug: with manifest.json and units.journal both gone, an edited study.resolved.yaml
+  // was accepted (plan and merge always write manifest.json, so its absence is no excuse).
+  Copy c;
+  const fs::path resolved = c.dir / "study.resolved.yaml";
+  std::string edited = io::read_file(resolved);
+  edited.replace(edited.find("seed: 3"), 7, "seed: 4");
+  fs::remove(c.dir / "manifest.json");
+  fs::remove(c.dir / "units.journal");
+  for (const bool edit : {false, true}) {
+    if (edit) io::write_file_atomically(resolved, edited);
+    const auto e = error_of([&] { io::load_finished_run(c.dir); });
+    INFO(e.what());
+    CHECK(e.file == c.dir.string());
+    CHECK_THAT(e.message, Catch::StartsWith("has no manifest.json") &&
+                              Catch::Contains("cannot be checked against the study that was planned") &&
+                              Catch::Contains("rerun `dobudget plan`") && Catch::Contains("`dobudget merge`"));
+  }
+  // A journal without a header (format 1) records no hash either.
+  io::write_file_atomically(c.dir / "units.journal", "");
+  CHECK_THAT(error_of([&] { io::load_finished_run(c.dir); }).message, Catch::StartsWith("has no manifest.json"));
+}
+
+TEST_CASE("finished run: a timings.csv far larger than its rows is refused before it is read", "[io][finished_run]") {
+  Copy c;
+  const fs::path timings = c.dir / "timings.csv";
+  std::ofstream(timings, std::ios::binary | std::ios::app) << std::string(study_rows * 2048, 'x');
+  const auto e = error_of([&] { io::load_finished_run(c.dir); });
+  CHECK(e.file == timings.string());
+  CHECK(e.line == 0);
+  CHECK_THAT(e.message, Catch::Contains("far more than the 48 rows of runs.csv beside it can fill"));
+}
+
+TEST_CASE("finished run: a symbolic link or a device in place of a run file is never followed to a device",
+          "[io][finished_run]") {
+  // Links are followed for reading (a link to a regular file is the file), but never to a device:
+  // /dev/zero as runs.csv or timings.csv would be read without end.
+  for (const char* name : {"runs.csv", "timings.csv", "manifest.json", "units.journal", "study.resolved.yaml"}) {
+    Copy c;
+    fs::remove(c.dir / name);
+    fs::create_symlink("/dev/zero", c.dir / name);
+    INFO(name);
+    const auto e = error_of([&] { io::load_finished_run(c.dir); });
+    CHECK(e.file == (c.dir / name).string());
+    CHECK_THAT(e.message, Catch::StartsWith("is not a regular file but a device"));
+  }
+}

@@ -370,3 +370,28 @@ TEST_CASE("journal: one writer at a time", "[io][journal]") {
   Journal j(file, hash);
   CHECK(j.units().size() == 1);
 }
+
+TEST_CASE("journal: a symbolic link named units.journal is refused, and nothing is written through it",
+          "[io][journal]") {
+  // The reproduced bug: `ln -s ~/victim units.journal`, then plan: the header and every record went
+  // into the victim file.
+  TempDir d("link");
+  const fs::path victim = d.path / "victim", file = d.path / "units.journal";
+  write(victim, "");
+  fs::create_symlink(victim, file);
+  CHECK_THROWS_WITH(Journal(file, hash), Catch::StartsWith(file.string() + ": is a symbolic link"));
+  CHECK(slurp(victim).empty());
+  CHECK(fs::is_symlink(fs::symlink_status(file)));  // left as it was, for the user to look at
+
+  // A link to a journal of this very study is refused all the same: the name must be the file.
+  write(victim, Journal::header(hash) + Journal::record(0, unit_rows(0)));
+  const std::string before = slurp(victim);
+  CHECK_THROWS_WITH(Journal(file, hash), Catch::Contains("is a symbolic link"));
+  CHECK(slurp(victim) == before);
+
+  // A dangling link: its target is not created.
+  fs::remove(file);
+  fs::create_symlink(d.path / "elsewhere", file);
+  CHECK_THROWS_WITH(Journal(file, hash), Catch::Contains("is a symbolic link"));
+  CHECK_FALSE(fs::exists(d.path / "elsewhere"));
+}

@@ -194,6 +194,9 @@ TEST_CASE("a study name with control characters, bad UTF-8 or excessive length i
   check_error("name: \"" + std::string(201, 'x') + "\"\n", 1, "name", "at most 200 bytes");
   // Invalid UTF-8 (RFC 3629, sec. 3): a lone continuation byte, an overlong form, a surrogate.
   for (const std::string bad : {"a\x80z", "\xc0\xafz", "\xed\xa0\x80"}) check_error("name: " + bad + "\n", 1, "name", "UTF-8");
+  // U+202E RIGHT-TO-LEFT OVERRIDE (Boucher and Anderson, "Trojan Source", 2021), U+2028, U+0085.
+  for (const std::string bad : {"a\xe2\x80\xaez", "a\xe2\x80\xa8z", "a\xc2\x85z"})
+    check_error("name: \"" + bad + "\"\n", 1, "name", "control characters");
   // Allowed: punctuation, spaces, paths-looking text (a name never becomes a path) and UTF-8.
   for (const std::string& ok : std::vector<std::string>{"Orchard irrigation (2026)", "../../escaped", "/etc/passwd", "x`touch PWNED`y",
                                "Gew\xc3\xa4" "chshaus \xe2\x80\x94 pilot", std::string(200, 'y')}) {
@@ -637,7 +640,7 @@ TEST_CASE("study limits: every bounded key refuses the first value above its lim
       {"budgets: { logged: [0, 10000001] }", "budgets.logged[1]", "must be at most 10000000 episodes"},
       {"fit: { latent_states: 201 }", "fit.latent_states", "must be at most 200"},
       {"fit: { restarts: 1001 }", "fit.restarts", "must be at most 1000"},
-      {"fit: { max_iterations: 1000001 }", "fit.max_iterations", "must be at most 1000000"},
+      {"fit: { max_iterations: 100001 }", "fit.max_iterations", "must be at most 100000"},
       {"fit: { prior: 1e101 }", "fit.prior", "must be in [0, 1e100]"},
       {"evaluation: { trajectories: 10000001 }", "evaluation.trajectories", "must be at most 10000000"},
       {"planner: { belief_points: 10001 }", "planner.belief_points", "must be at most 10000"},
@@ -653,7 +656,7 @@ TEST_CASE("study limits: every bounded key refuses the first value above its lim
   // Each limit itself is accepted.
   const Study ok = parse("name: limits\nenvironment: { states: 200, actions: 200, observations: 200, horizon: 10000,"
                          " draws: 100 }\nbudgets: { pilot: [1, 10000000], logged: [0, 10000000] }\nreplicates: 100000\n"
-                         "fit: { restarts: 1000, max_iterations: 1000000, prior: 1e100 }\n"
+                         "fit: { restarts: 1000, max_iterations: 100000, prior: 1e100 }\n"
                          "evaluation: { trajectories: 10000000 }\n"
                          "planner: { belief_points: 10000, exact_histories: 1000000000, rollouts: 10000000 }\n");
   CHECK(ok.scenarios.front().settings.environment.horizon == 10000);
@@ -696,15 +699,54 @@ TEST_CASE("study limits: a sweep whose scenario count overflows is refused befor
   CHECK(parse(small).scenarios.size() == 10000);
 }
 
-TEST_CASE("study limits: more than 10^7 units are refused at the key that passes the limit", "[study_file][limits]") {
+TEST_CASE("study limits: more than 10^7 units are refused at the written factor that drives them",
+          "[study_file][limits]") {
   // draws and replicates are each within their limits; their product is not (computed in 64 bits).
-  check_error("name: many\nenvironment: { draws: 100000 }\nreplicates: 101\n", 3, "replicates",
+  // Of the factors the study writes, the largest is named, at its line.
+  check_error("name: many\nenvironment: { draws: 100000 }\nreplicates: 101\n", 2, "environment.draws",
+              "makes more than 10000000 units");
+  check_error("name: many\nenvironment: { draws: 101 }\nreplicates: 100000\n", 3, "replicates",
               "makes more than 10000000 units");
   CHECK(parse("name: many\nenvironment: { draws: 100000 }\nreplicates: 100\n").scenarios.size() == 1);
   // Across scenarios: 2 scenarios of 10^7 / 2 + 1 units each.
   const InputError e = parse_error("name: many\nenvironment: { draws: 50001 }\nreplicates: 100\nsweep: { fit.prior: [0.1, 0.2] }\n");
-  CHECK(e.key == "replicates");
+  CHECK(e.key == "environment.draws");
   CHECK_THAT(e.message, Catch::Contains("2 scenarios"));
+  // Before, replicates (not written) was named at line 1 when draws and the sweep drove it.
+  check_error("name: many\n\nenvironment:\n  draws: 100000\nsweep: { fit.prior: [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, "
+              "0.9, 1.0, 1.1] }\n",
+              4, "environment.draws", "11 scenarios");
+  // A sweep of more scenarios than draws or replicates: the sweep is named.
+  std::string sweep = "name: many\nenvironment: { draws: 1000 }\nsweep:\n  fit.prior: [";
+  for (int i = 1; i <= 2000; ++i) sweep += (i > 1 ? ", " : "") + std::to_string(i);
+  sweep += "]\n";
+  check_error(sweep, 4, "sweep", "2000 scenarios");
+  // A swept factor is named by its sweep entry.
+  const InputError s = parse_error("name: many\nenvironment: { draws: 100 }\nsweep: { replicates: [10, 100000] }\n");
+  CHECK(s.key == "sweep.replicates[1]");
+  CHECK(s.line == 3);
+}
+
+TEST_CASE("study limits: a budget list of more than 100 budgets is refused before its budgets are read",
+          "[study_file][limits]") {
+  // The review's 98 KB file: pilot [1..10000] and logged [0..9999]. Before, it was read whole and
+  // `check` allocated gigabytes counting 3 x 10^8 cells, ending in std::bad_alloc (exit 1).
+  std::string pilot = "[", logged = "[";
+  for (int i = 0; i < 10000; ++i) {
+    pilot += (i ? ", " : "") + std::to_string(i + 1);
+    logged += (i ? ", " : "") + std::to_string(i);
+  }
+  const std::string big = "name: grid\nbudgets:\n  logged: " + logged + "]\n  pilot: " + pilot + "]\n";
+  check_error(big, 3, "budgets.logged", "lists 10000 budgets, more than the 100 a list may hold");
+  std::string list = "[";
+  for (int i = 1; i <= 101; ++i) list += (i > 1 ? ", " : "") + std::to_string(i);
+  check_error("name: grid\nbudgets:\n  pilot: " + list + "]\n", 3, "budgets.pilot", "lists 101 budgets");
+  // 100 is accepted.
+  list = "[";
+  for (int i = 1; i <= 100; ++i) list += (i > 1 ? ", " : "") + std::to_string(i);
+  CHECK(parse("name: grid\nbudgets:\n  pilot: " + list + "]\n  logged: " + list + "]\n")
+            .scenarios[0]
+            .settings.pilot_budgets.size() == 100);
 }
 
 TEST_CASE("study limits: an inline model with a reward of 1e308 is refused, located in the study",

@@ -7,6 +7,7 @@
 #include <algorithm>
 #include <cstdlib>
 #include <filesystem>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -123,18 +124,22 @@ TEST_CASE("text_escape: markdown_text escapes syntax characters, & < > and line 
     CHECK(io::markdown_text(std::string("a") + c + "b") == std::string("a\\") + c + "b");
   }
   // A table cell: the pipe escaped (GFM spec 0.29, section 4.10), the row kept on one line.
-  CHECK(io::markdown_cell("a|b\nc") == "a\\|b c");
+  CHECK(io::markdown_text("a|b\nc") == "a\\|b c");
+  // '@' is followed by U+2060 WORD JOINER, so that no e-mail autolink forms (GFM 0.29, sec. 6.9).
+  CHECK(io::markdown_text("a@b.com") == "a@\xE2\x81\xA0" "b\\.com");
 }
 
-TEST_CASE("text_escape: csv_field quotes by RFC 4180", "[text_escape]") {
-  // RFC 4180 (Shafranovich 2005), section 2, rules 5 to 7.
-  CHECK(io::csv_field("plain") == "plain");
-  CHECK(io::csv_field("") == "");
-  CHECK(io::csv_field("a,b") == "\"a,b\"");
-  CHECK(io::csv_field("say \"hi\"") == "\"say \"\"hi\"\"\"");
-  CHECK(io::csv_field("two\nlines") == "\"two\nlines\"");
-  CHECK(io::csv_field("cr\rx") == "\"cr\rx\"");
-  CHECK(io::csv_field("x=0.5; y") == "x=0.5; y");
+TEST_CASE("text_escape: printable_text keeps line breaks and cleans each line; first_invalid_utf8", "[text_escape]") {
+  CHECK(io::printable_text("one\ntwo\x1b[2J\nthree") == "one\ntwo\xEF\xBF\xBD[2J\nthree");
+  CHECK(io::printable_text("a\tb\r\n") == "a b \n");
+  CHECK(io::printable_text("") == "");
+  // RFC 3629, section 4: a lone continuation byte, an overlong '/', a surrogate, past U+10FFFF.
+  CHECK_FALSE(io::first_invalid_utf8("plain caf\xC3\xA9 \xF0\x9F\x8C\xB1").has_value());
+  CHECK(io::first_invalid_utf8("ab\x80") == std::optional<std::size_t>(2));
+  CHECK(io::first_invalid_utf8("\xC0\xAF") == std::optional<std::size_t>(0));
+  CHECK(io::first_invalid_utf8("x\xED\xA0\x80") == std::optional<std::size_t>(1));
+  CHECK(io::first_invalid_utf8("\xF4\x90\x80\x80") == std::optional<std::size_t>(0));
+  CHECK(io::first_invalid_utf8("cut \xE2\x82") == std::optional<std::size_t>(4));
 }
 
 TEST_CASE("text_escape: the terminal tables show user text without control characters", "[text_escape]") {
