@@ -48,9 +48,10 @@
 // The interval reflects sampling variability between pairs only, not the error of interpolating
 // between grid points: with a coarse grid and sharp transitions it can be narrower than that error.
 // The stream is make_engine({study_seed, scenario, 0, 0}, Purpose::bootstrap, sub) with
-// sub = combine(combine(name_key(measure), name_key(strategy)), logged): the same resamples for
-// every target, assurance and criterion of a (measure, strategy, logged) cell (common random
-// numbers), so answers for different targets differ only through the target.
+// sub = name_key(measure) only: the same resamples for every target, assurance and criterion and
+// for every strategy and logged budget of a measure (common random numbers; cells with the same
+// pairs are resampled with the same pairs), so identical rows give identical answers and answers
+// differ only through the data and the target.
 //
 // Savings: saved_vs_pilot_only = needed(pilot-only) - needed(strategy, N_L), for pooled and
 // regime-aware only. Pilot-only ignores logged data: its answer at the same logged budget is used
