@@ -49,7 +49,7 @@ int fits_per_unit(const ScenarioSettings& s) {
 
 DrawContext make_draw_context(const Study& study, int scenario, int draw, const StopToken& stop) {
   const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(scenario)].settings;
-  const StreamKey key{study.seed, static_cast<std::uint64_t>(scenario), static_cast<std::uint64_t>(draw), 0};
+  const StreamKey key = unit_stream_key(study.seed, scenario, draw, 0);
   DrawContext c;
   c.environment = make_environment(s, key);
   for (Measure m : s.measures)
@@ -61,8 +61,7 @@ DrawContext make_draw_context(const Study& study, int scenario, int draw, const 
 std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawContext& ctx, const StopToken& stop) {
   const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(u.scenario)].settings;
   const Environment& env = ctx.environment;
-  const StreamKey key{study.seed, static_cast<std::uint64_t>(u.scenario), static_cast<std::uint64_t>(u.draw),
-                      static_cast<std::uint64_t>(u.replicate)};
+  const StreamKey key = unit_stream_key(study.seed, u.scenario, u.draw, u.replicate);  // paired scenarios
 
   stop.poll();  // a unit started after a stop does nothing
   // Nested data: every budget is a prefix of the largest budget's episodes.
