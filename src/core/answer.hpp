@@ -17,7 +17,7 @@
 //
 // Statuses:
 //   met-at-smallest  the criterion holds at the smallest budget; needed = that budget, an upper
-//                    bound (fewer may do, the grid cannot tell).
+//                    bound (fewer may do, the grid cannot tell), exact when that budget is 0.
 //   reached          crossing between two grid points, interpolated in log n.
 //   extrapolated     the largest budget falls short; the learning curve e(n) = c + a n^(-b)
 //                    (learning_curve.hpp) fitted to the per-budget statistic has floor c < epsilon
@@ -38,7 +38,9 @@
 // a failure, and enters means and quantiles as 1e290 so that they stay finite.
 // A pilot budget where no pair has a value is dropped from the grid. A grid segment that starts
 // at budget 0 is interpolated linearly in n (log 0 is undefined) and budget 0 is left out of the
-// learning curve.
+// learning curve. At pilot budget 0 a strategy that uses logged data is fitted on them alone, and
+// a cell with no data at all (pilot-only, or any strategy at logged 0) has +infinity: a failure
+// (unit.hpp, kNoData).
 //
 // Interval: a two-stage percentile bootstrap (Efron and Tibshirani, "An Introduction to the
 // Bootstrap", 1993, ch. 13; resampling hierarchical data: Davison and Hinkley, "Bootstrap Methods

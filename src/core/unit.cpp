@@ -1,6 +1,7 @@
 #include "core/unit.hpp"
 
 #include <chrono>
+#include <limits>
 #include <map>
 #include <tuple>
 
@@ -93,6 +94,17 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
       for (int n : s.pilot_budgets) {
         const FitKey k = fit_key(st, L, n);
         auto it = cells.find(k);
+        if (it == cells.end() && k.strategy == Strategy::pilot_only && k.pilot == 0) {
+          // No data at all (pilot budget 0, no logged episodes used): nothing is fitted, and the
+          // cell fails every target (+infinity), or is empty where the draw leaves no room for
+          // planning, like every other fit of the draw.
+          Cell c;
+          c.note = kNoData;
+          if (want_kl) c.kl = std::numeric_limits<double>::infinity();
+          if (want_gap && ctx.return_gap->room) c.gap = std::numeric_limits<double>::infinity();
+          if (want_gap && !ctx.return_gap->room) c.note = ctx.return_gap->note;
+          it = cells.emplace(k, std::move(c)).first;
+        }
         if (it == cells.end()) {
           std::vector<DataView> views{{&pilot, n, Regime::pilot}};
           if (k.strategy != Strategy::pilot_only)

@@ -39,6 +39,11 @@ struct DrawContext {
 // `stop` (stop.hpp) is polled throughout; a requested stop throws Cancelled and nothing is returned.
 DrawContext make_draw_context(const Study& study, int scenario, int draw, const StopToken& stop = {});
 
+// The note of a cell with no data at all (pilot budget 0 and no logged episodes used, e.g.
+// pilot-only at pilot 0): nothing is fitted, loglik is 0 (log 1), iterations 0, not converged,
+// and every measure is +infinity (a failure for every target; answer.hpp).
+inline constexpr const char* kNoData = "no data: nothing fitted";
+
 // Runs one unit. Rows come in the order strategy (as listed in the settings), logged budget,
 // pilot budget. `stop` is polled in every long loop (fits, model_kl, planner, rollouts): a unit
 // that is stopped throws Cancelled and returns no rows, so no partial unit can be recorded.

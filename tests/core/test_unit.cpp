@@ -274,3 +274,40 @@ TEST_CASE("unit: paired scenarios — an observation_noise sweep rescales the sa
       CHECK((b.emissions(s, o) - one) == Approx(2.0 * (a.emissions(s, o) - one)).margin(1e-12));
     }
 }
+
+TEST_CASE("unit: a pilot budget of 0 fits on logged data alone; pilot-only has no data", "[unit][budget0]") {
+  // unit.hpp (kNoData): with no data at all nothing is fitted and every measure is +infinity (a
+  // failure for every target); pooled and regime-aware at logged 50 and pilot 0 are real fits of
+  // the logged episodes alone, with a finite model_kl and a log-likelihood below 0.
+  Study st = un_study(3, 2, 3, 4, 3);
+  st.scenarios[0].settings.pilot_budgets = {0, 5};
+  const auto rows = un_run(st, 0);
+  REQUIRE(rows.size() == 3 * 2 * 2);
+  int no_data = 0, logged_only = 0;
+  for (const auto& r : rows) {
+    INFO(name(r.strategy) << " logged " << r.logged << " pilot " << r.pilot);
+    if (r.pilot != 0) {
+      CHECK(r.note.empty());
+      continue;
+    }
+    if (r.strategy == Strategy::pilot_only || r.logged == 0) {
+      CHECK(r.note == kNoData);
+      REQUIRE(r.model_kl);
+      CHECK(std::isinf(*r.model_kl));
+      CHECK(r.loglik == 0.0);
+      CHECK(r.iterations == 0);
+      CHECK_FALSE(r.converged);
+      ++no_data;
+    } else {
+      CHECK(r.note.empty());
+      REQUIRE(r.model_kl);
+      CHECK(std::isfinite(*r.model_kl));
+      CHECK(r.loglik < 0.0);
+      CHECK(r.iterations > 0);
+      ++logged_only;
+    }
+  }
+  CHECK(no_data == 4);      // pilot-only at logged 0 and 50, pooled and regime-aware at logged 0
+  CHECK(logged_only == 2);  // pooled and regime-aware at logged 50
+  CHECK(fits_per_unit(st.scenarios[0].settings) == 1 + 1 + 2 + 2);  // pilot-only 0 (nothing) and 5; 2 x 2 logged
+}

@@ -2,6 +2,8 @@
 // logged 0 (issue 10, item 5); runs.csv keeps every row.
 #include <catch2/catch.hpp>
 
+#include <cmath>
+#include <limits>
 #include <sstream>
 #include <string>
 #include <vector>
@@ -10,6 +12,10 @@
 #include "io/summary_table.hpp"
 
 using namespace dobudget;
+
+namespace {
+constexpr double kInf = std::numeric_limits<double>::infinity();
+}  // namespace
 
 TEST_CASE("summary table: pilot-only once, strategies at logged 0 left out, one line saying so", "[summary_table]") {
   // Records as run_unit writes them (unit.hpp: fits are shared): pilot-only the same at logged 0 and
@@ -49,4 +55,20 @@ TEST_CASE("summary table: pilot-only once, strategies at logged 0 left out, one 
   const std::string u = io::format_summary(alone, pooled);
   CHECK(u.find("shown once") == std::string::npos);
   CHECK(io::readable_cells(summarise(pooled, Measure::model_kl)).cells.size() == 4);
+}
+
+TEST_CASE("summary: infinite values (cells with no data) give infinite quantiles, not NaN", "[summary_table]") {
+  // summary.hpp, Hyndman and Fan type 7 with +infinity absorbing: the median of {1, inf} lies
+  // between 1 and inf (inf); its 0-quantile is 1; the sd of values with an infinity is undefined.
+  CHECK(std::isinf(quantile_type7({1.0, kInf}, 0.5)));
+  CHECK(quantile_type7({1.0, kInf}, 0.0) == 1.0);
+  CHECK(std::isinf(quantile_type7({kInf, kInf}, 0.1)));
+  std::vector<RunRecord> rows;
+  for (int j = 0; j < 3; ++j) rows.push_back(test::make_record(0, j, 0, Strategy::pilot_only, 0, 0, kInf));
+  const auto c = summarise(rows, Measure::model_kl);
+  REQUIRE(c.size() == 1);
+  CHECK(std::isinf(c[0].mean));
+  CHECK(std::isinf(c[0].median));
+  CHECK(std::isinf(c[0].q10));
+  CHECK(std::isnan(c[0].sd));
 }
