@@ -170,6 +170,13 @@ struct AnswerRow {
 double relative_half_width(const AnswerRow& row);
 
 // Whether the answer is known to the stated relative precision: relative_half_width <= relative.
+// What a search for that precision reads from a row that does not meet it: budgets next to the
+// crossing are missing when the point's bracket alone is too wide, (bracket_high - bracket_low) /
+// 2 / needed_pilot > relative (simulate budgets inside (bracket_low, bracket_high); below the
+// smallest budget, down to 0, when met-at-smallest; above the largest when extrapolated,
+// unreachable or not-reached); more draws or replicates are needed when the sampling part alone
+// is too wide, (sampling_high - sampling_low) / 2 / needed_pilot > relative (draws when `draws` is
+// small: the spread between worlds dominates on the model class, DEVELOPERS.md "Answer").
 bool meets_precision(const AnswerRow& row, double relative);
 
 // Fewer environment draws than this, and the printed table and answer.md warn that the interval

@@ -45,6 +45,7 @@ int fits_per_unit(const ScenarioSettings& s) {
   for (Strategy st : s.strategies)
     for (int L : s.logged_budgets)
       for (int n : s.pilot_budgets) keys[fit_key(st, L, n)] = 1;
+  keys.erase(FitKey{Strategy::pilot_only, 0, 0});  // no data at all: nothing is fitted (kNoData)
   return static_cast<int>(keys.size());
 }
 

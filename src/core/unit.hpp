@@ -25,7 +25,8 @@ struct UnitId {
 std::vector<UnitId> enumerate_units(const Study& study);
 
 // Number of model fits a unit performs (fits whose data coincide are shared: pilot-only ignores
-// logged data, and with no logged episodes every strategy is the pilot-only fit).
+// logged data, and with no logged episodes every strategy is the pilot-only fit; a cell with no
+// data at all, pilot budget 0 without logged episodes, is not fitted).
 int fits_per_unit(const ScenarioSettings& s);
 
 struct ReturnGapReference;  // return_gap.hpp

@@ -309,5 +309,5 @@ TEST_CASE("unit: a pilot budget of 0 fits on logged data alone; pilot-only has n
   }
   CHECK(no_data == 4);      // pilot-only at logged 0 and 50, pooled and regime-aware at logged 0
   CHECK(logged_only == 2);  // pooled and regime-aware at logged 50
-  CHECK(fits_per_unit(st.scenarios[0].settings) == 1 + 1 + 2 + 2);  // pilot-only 0 (nothing) and 5; 2 x 2 logged
+  CHECK(fits_per_unit(st.scenarios[0].settings) == 1 + 2 * 2);  // pilot-only at 5 (nothing at 0); 2 strategies x 2 budgets at logged 50
 }
