@@ -19,8 +19,7 @@ int draw_command(const std::string& study_file, const std::string& out) {
   for (const auto& sc : study.scenarios) {
     const int draws = sc.settings.environment.given ? 1 : sc.settings.environment.draws;
     for (int d = 0; d < draws; ++d) {
-      const Environment env = make_environment(
-          sc.settings, StreamKey{study.seed, static_cast<std::uint64_t>(sc.index), static_cast<std::uint64_t>(d), 0});
+      const Environment env = make_environment(sc.settings, unit_stream_key(study.seed, sc.index, d, 0));
       const auto file = dir / fmt::format("scenario-{}-environment-{}.yaml", sc.index, d);
       io::write_file_atomically(file, io::model_yaml(env));
       std::printf("%s\n", file.string().c_str());

@@ -37,6 +37,7 @@ std::optional<double> measure_of(const RunRecord& r, Measure m) {
 // The values of one measure for one (strategy, logged) cell: pairs x budgets.
 struct Cell {
   std::size_t pairs = 0;
+  std::vector<std::vector<std::uint32_t>> draw_pairs;  // the pairs of each environment draw
   std::vector<double> budgets;            // the grid, ascending
   std::vector<double> value;              // pairs x budgets, row-major; NaN when missing
   std::vector<std::vector<std::uint32_t>> sorted;  // per budget: pairs with a value, by value
@@ -46,6 +47,8 @@ struct Outcome {
   double needed = kNaN;
   AnswerStatus status = AnswerStatus::not_reached;
   std::optional<double> floor;
+  double bracket_low = 0.0, bracket_high = kInf;  // where the crossing lies (answer.hpp, Interval)
+  double smallest = kNaN;                         // the smallest budget with data
 };
 
 // Evaluates the answer for pair multiplicities `counts` (all ones: the data; a bootstrap resample
@@ -104,6 +107,7 @@ class Evaluator {
     const std::size_t m = j;
     Outcome out;
     if (m == 0) return out;
+    out.smallest = n_[0];
     const std::span<const double> stat(stat_.data(), m), w(w_.data(), m);
     const std::span<double> mono(mono_.data(), m);
     const bool assurance = q_.criterion == Criterion::assurance;
@@ -117,9 +121,11 @@ class Evaluator {
     };
     for (std::size_t i = 0; i < m; ++i) {
       if (!met(mono[i])) continue;
-      if (i == 0) {
+      if (i == 0) {  // somewhere in [0, n_0]
         out.needed = n_[0];
         out.status = AnswerStatus::met_at_smallest;
+        out.bracket_low = 0.0;
+        out.bracket_high = n_[0];
         return out;
       }
       // Linear interpolation in log n between grid points i-1 and i (linear in n from budget 0).
@@ -127,9 +133,15 @@ class Evaluator {
       const double n0 = n_[i - 1], n1 = n_[i];
       out.needed = n0 > 0.0 ? std::exp(std::log(n0) + t * (std::log(n1) - std::log(n0))) : t * n1;
       out.status = AnswerStatus::reached;
+      out.bracket_low = n0;
+      out.bracket_high = n1;
       return out;
     }
-    return extrapolate(counts, m);
+    Outcome far = extrapolate(counts, m);
+    far.smallest = n_[0];
+    far.bracket_low = n_[m - 1];  // beyond the largest budget
+    far.bracket_high = far.status == AnswerStatus::extrapolated ? far.needed : kInf;
+    return far;
   }
 
  private:
@@ -229,10 +241,21 @@ double percentile(const std::vector<double>& sorted, double prob) {
   return x0 + frac * (x1 - x0);
 }
 
+// The order statistic at Hyndman and Fan definition 7's position (n - 1) prob, rounded down
+// (`outwards` towards the lower end) or up: always one of the values, never between two.
+double outer_order_statistic(const std::vector<double>& sorted, double prob, bool up) {
+  if (sorted.empty()) return kNaN;
+  const double h = (static_cast<double>(sorted.size()) - 1.0) * prob;
+  const auto i = static_cast<std::size_t>(up ? std::ceil(h - 1e-9) : std::floor(h + 1e-9));
+  return sorted[std::min(i, sorted.size() - 1)];
+}
+
 struct CellResult {
   Outcome point;
   double low = kNaN, high = kNaN;
+  double sampling_low = kNaN, sampling_high = kNaN;
   int pairs = 0;
+  int draws = 0;
 };
 
 CellResult answer_cell(const Cell& cell, const AnswerQuery& q, std::uint64_t study_seed, int scenario,
@@ -241,24 +264,38 @@ CellResult answer_cell(const Cell& cell, const AnswerQuery& q, std::uint64_t stu
   std::vector<int> counts(cell.pairs, 1);
   CellResult res;
   res.pairs = static_cast<int>(cell.pairs);
+  res.draws = static_cast<int>(cell.draw_pairs.size());
   res.point = evaluate(counts);
   if (q.bootstrap <= 0) return res;
-  // The same resamples of (draw, replicate) pairs for every strategy and logged budget: identical
-  // rows give identical answers, and differences between strategies are paired (common random numbers).
+  // The same resamples for every strategy and logged budget: identical rows give identical answers,
+  // and differences between strategies are paired (common random numbers).
   const std::uint64_t sub = name_key(name(q.measure));
-  Engine engine = make_engine(StreamKey{study_seed, static_cast<std::uint64_t>(scenario), 0, 0}, Purpose::bootstrap, sub);
-  boost::random::uniform_int_distribution<std::uint32_t> pick(0, static_cast<std::uint32_t>(cell.pairs - 1));
-  std::vector<double> needed(static_cast<std::size_t>(q.bootstrap));
-  for (double& x : needed) {
+  Engine engine = make_engine(unit_stream_key(study_seed, scenario, 0, 0), Purpose::bootstrap, sub);
+  const auto draws = static_cast<std::uint32_t>(cell.draw_pairs.size());
+  boost::random::uniform_int_distribution<std::uint32_t> pick_draw(0, draws - 1);
+  const auto b = static_cast<std::size_t>(q.bootstrap);
+  std::vector<double> needed(b), lower(b), upper(b);
+  for (std::size_t k = 0; k < b; ++k) {
+    // Two stages: draws with replacement, then replicates with replacement within each drawn world.
     std::fill(counts.begin(), counts.end(), 0);
-    for (std::size_t i = 0; i < cell.pairs; ++i) ++counts[pick(engine)];
-    const double v = evaluate(counts).needed;
-    x = std::isnan(v) ? kInf : v;  // not-reached resamples count as unreachable
+    for (std::uint32_t i = 0; i < draws; ++i) {
+      const auto& own = cell.draw_pairs[draws == 1 ? 0 : pick_draw(engine)];
+      boost::random::uniform_int_distribution<std::uint32_t> pick(0, static_cast<std::uint32_t>(own.size() - 1));
+      for (std::size_t r = 0; r < own.size(); ++r) ++counts[own[own.size() == 1 ? 0 : pick(engine)]];
+    }
+    const Outcome o = evaluate(counts);
+    needed[k] = std::isnan(o.needed) ? kInf : o.needed;  // not-reached resamples count as unreachable
+    lower[k] = o.bracket_low;
+    upper[k] = o.bracket_high;
   }
   std::sort(needed.begin(), needed.end());
+  std::sort(lower.begin(), lower.end());
+  std::sort(upper.begin(), upper.end());
   const double alpha = (1.0 - q.interval) / 2.0;
-  res.low = percentile(needed, alpha);
-  res.high = percentile(needed, 1.0 - alpha);
+  res.sampling_low = percentile(needed, alpha);
+  res.sampling_high = percentile(needed, 1.0 - alpha);
+  res.low = outer_order_statistic(lower, alpha, false);
+  res.high = outer_order_statistic(upper, 1.0 - alpha, true);
   return res;
 }
 
@@ -277,6 +314,15 @@ std::optional<double> saved(double reference, double needed) {
 }
 
 }  // namespace
+
+double relative_half_width(const AnswerRow& row) {
+  const double width = row.high - row.low;  // NaN with no interval, +inf (or NaN) with an infinite end
+  if (std::isnan(width) || std::isnan(row.needed_pilot) || std::isinf(width) || std::isinf(row.needed_pilot)) return kInf;
+  if (row.needed_pilot <= 0.0) return width > 0.0 ? kInf : 0.0;
+  return width / 2.0 / row.needed_pilot;
+}
+
+bool meets_precision(const AnswerRow& row, double relative) { return relative_half_width(row) <= relative; }
 
 std::vector<AnswerQuery> default_queries(const ScenarioSettings& settings) {
   std::vector<AnswerQuery> out;
@@ -331,6 +377,10 @@ std::vector<AnswerRow> compute_answers(const std::vector<RunRecord>& rows, int s
       ids.erase(std::unique(ids.begin(), ids.end()), ids.end());
       const std::size_t kb = grid.size();
       cell.pairs = ids.size();
+      for (std::uint32_t p = 0; p < cell.pairs; ++p) {  // ids are sorted by draw: one run of pairs per draw
+        if (p == 0 || ids[p].first != ids[p - 1].first) cell.draw_pairs.emplace_back();
+        cell.draw_pairs.back().push_back(p);
+      }
       cell.value.assign(cell.pairs * kb, kNaN);
       for (const RunRecord* r : g->second) {
         const auto v = measure_of(*r, measure);
@@ -383,6 +433,13 @@ std::vector<AnswerRow> compute_answers(const std::vector<RunRecord>& rows, int s
         row.floor = res.point.floor;
         row.pairs = res.pairs;
         row.interval = q.interval;
+        row.draws = res.draws;
+        row.family_draws = !settings.environment.given.has_value();
+        row.smallest = res.point.smallest;
+        row.bracket_low = res.point.bracket_low;
+        row.bracket_high = res.point.bracket_high;
+        row.sampling_low = res.sampling_low;
+        row.sampling_high = res.sampling_high;
         out.push_back(row);
       }
     }

@@ -17,7 +17,7 @@
 //
 // Statuses:
 //   met-at-smallest  the criterion holds at the smallest budget; needed = that budget, an upper
-//                    bound (fewer may do, the grid cannot tell).
+//                    bound (fewer may do, the grid cannot tell), exact when that budget is 0.
 //   reached          crossing between two grid points, interpolated in log n.
 //   extrapolated     the largest budget falls short; the learning curve e(n) = c + a n^(-b)
 //                    (learning_curve.hpp) fitted to the per-budget statistic has floor c < epsilon
@@ -38,19 +38,39 @@
 // a failure, and enters means and quantiles as 1e290 so that they stay finite.
 // A pilot budget where no pair has a value is dropped from the grid. A grid segment that starts
 // at budget 0 is interpolated linearly in n (log 0 is undefined) and budget 0 is left out of the
-// learning curve.
+// learning curve. At pilot budget 0 a strategy that uses logged data is fitted on them alone, and
+// a cell with no data at all (pilot-only, or any strategy at logged 0) has +infinity: a failure
+// (unit.hpp, kNoData).
 //
-// Interval: percentile bootstrap (Efron and Tibshirani, "An Introduction to the Bootstrap", 1993,
-// ch. 13) over pairs resampled with replacement; each resample recomputes the whole answer
-// (monotone fit, crossing, extrapolation). Resamples that are unreachable or not-reached count as
-// +infinity, so the upper end (and even the lower) may be +infinity. Percentiles are the linear
-// interpolation of order statistics (Hyndman and Fan definition 7), with +infinity absorbing.
-// The interval reflects sampling variability between pairs only, not the error of interpolating
-// between grid points: with a coarse grid and sharp transitions it can be narrower than that error.
-// The stream is make_engine({study_seed, scenario, 0, 0}, Purpose::bootstrap, sub) with
-// sub = combine(combine(name_key(measure), name_key(strategy)), logged): the same resamples for
-// every target, assurance and criterion of a (measure, strategy, logged) cell (common random
-// numbers), so answers for different targets differ only through the target.
+// Interval: a two-stage percentile bootstrap (Efron and Tibshirani, "An Introduction to the
+// Bootstrap", 1993, ch. 13; resampling hierarchical data: Davison and Hinkley, "Bootstrap Methods
+// and their Application", 1997, sec. 3.8). Replicates of one environment draw share their world,
+// so pairs are not independent; each resample draws D environment draws with replacement from the
+// D draws of the cell, then, within each drawn world, as many replicates as it has with
+// replacement from its own (one draw, as with a given model: replicates only). Each resample
+// recomputes the whole answer (monotone fit, crossing, extrapolation). `draws` reports D: with
+// few draws even this scheme understates the spread between worlds (tests/core/test_answer.cpp,
+// "coverage").
+// The interval also carries where the crossing lies between the simulated budgets: a resample
+// whose monotone curve crosses between n_{i-1} and n_i brackets its crossing by [n_{i-1}, n_i]
+// (the interpolation is a guess inside it); met at the smallest budget n_0, by [0, n_0];
+// extrapolated, by [largest budget, extrapolated need]; unreachable or not-reached, by
+// [largest budget, +infinity]. low is the alpha-percentile of the lower ends and high the
+// (1 - alpha)-percentile of the upper ends, with alpha = (1 - interval) / 2, each taken at the
+// outer order statistic (Hyndman and Fan definition 7's position, rounded outwards), so both ends
+// are simulated budgets (or an extrapolated need, or +infinity). As every resample's crossing lies
+// in its bracket, [low, high] contains the percentile interval of the crossings themselves,
+// wherever they lie between the budgets: a jump from 0 to every pair between 300 and 1000 gives
+// [300, 1000], and only budgets close together around the crossing give a narrow interval.
+// sampling_low, sampling_high are the plain percentile interval of the interpolated needs (type 7,
+// +infinity absorbing, unreachable and not-reached resamples as +infinity): the sampling part of
+// the spread alone. relative_half_width and meets_precision (below) say whether an answer is
+// within a stated precision.
+// The stream is make_engine(unit_stream_key(study_seed, scenario, 0, 0), Purpose::bootstrap, sub)
+// with sub = name_key(measure) only: the same resamples for every target, assurance and criterion
+// and for every strategy and logged budget of a measure, and for every scenario of a sweep
+// (common random numbers; cells with the same pairs are resampled with the same pairs), so
+// identical rows give identical answers and answers differ only through the data and the target.
 //
 // Savings: saved_vs_pilot_only = needed(pilot-only) - needed(strategy, N_L), for pooled and
 // regime-aware only. Pilot-only ignores logged data: its answer at the same logged budget is used
@@ -134,7 +154,34 @@ struct AnswerRow {
   std::optional<double> exchange_rate;        // saved / logged; empty when logged == 0
   int pairs = 0;                              // (draw, replicate) pairs with a value
   double interval = 0.90;                     // coverage of [low, high] (not a CSV column)
+  int draws = 0;  // environment draws among the pairs (CSV column `draws`)
+  // Not CSV columns:
+  bool family_draws = true;  // the draws come from the synthetic family (false: a given model, one world)
+  double smallest = 0.0;     // the smallest pilot budget with data in the cell
+  double bracket_low = 0.0;  // the simulated budgets around the point estimate's crossing (see Interval)
+  double bracket_high = 0.0;
+  double sampling_low = 0.0;  // sampling part of the interval only (see Interval); NaN when bootstrap == 0
+  double sampling_high = 0.0;
 };
+
+// The interval's half-width relative to the needed budget, (high - low) / 2 / needed_pilot:
+// +infinity when an end or the need is infinite, the need is 0 with an interval wider than a
+// point, or any of them is NaN (no interval).
+double relative_half_width(const AnswerRow& row);
+
+// Whether the answer is known to the stated relative precision: relative_half_width <= relative.
+// What a search for that precision reads from a row that does not meet it: budgets next to the
+// crossing are missing when the point's bracket alone is too wide, (bracket_high - bracket_low) /
+// 2 / needed_pilot > relative (simulate budgets inside (bracket_low, bracket_high); below the
+// smallest budget, down to 0, when met-at-smallest; above the largest when extrapolated,
+// unreachable or not-reached); more draws or replicates are needed when the sampling part alone
+// is too wide, (sampling_high - sampling_low) / 2 / needed_pilot > relative (draws when `draws` is
+// small: the spread between worlds dominates on the model class, DEVELOPERS.md "Answer").
+bool meets_precision(const AnswerRow& row, double relative);
+
+// Fewer environment draws than this, and the printed table and answer.md warn that the interval
+// understates the spread between worlds (synthetic family only: a given model is one world).
+inline constexpr int few_draws = 10;
 
 // One query per measure of the scenario that has a target, with the scenario's assurance and
 // the assurance criterion (the study's defaults).

@@ -133,7 +133,7 @@ CostEstimate estimate_cost(const Study& study, int calibration_episodes) {
   for (const auto& sc : study.scenarios) {
     const ScenarioSettings& s = sc.settings;
     const auto t_start = std::chrono::steady_clock::now();
-    const StreamKey key{study.seed, static_cast<std::uint64_t>(sc.index), 0, 0};
+    const StreamKey key = unit_stream_key(study.seed, sc.index, 0, 0);
     const Environment env = make_environment(s, key);
     // Calibration data: pilot and logged episodes in the proportions of the largest budgets.
     // In double: the products overflowed int for budgets above about 2 million.

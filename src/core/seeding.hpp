@@ -1,4 +1,5 @@
-// Random streams: one per (study seed, scenario, environment draw, replicate, purpose).
+// Random streams: one per (study seed, scenario, environment draw, replicate, purpose), where every
+// scenario of a study uses scenario component 0 (paired scenarios: unit_stream_key below).
 // design.md sec. 6. Every stream is a Boost.Random engine (output specified by the algorithm,
 // hence identical on every platform); std:: distributions are never used.
 #pragma once
@@ -59,6 +60,27 @@ constexpr std::uint64_t stream_seed(const StreamKey& k, Purpose p, std::uint64_t
 
 inline Engine make_engine(const StreamKey& k, Purpose p, std::uint64_t sub = 0) {
   return Engine(stream_seed(k, p, sub));
+}
+
+// Paired scenarios: the stream key of (scenario, draw, replicate) has scenario component 0 for
+// every scenario of a study, so the scenarios of a sweep share every random stream (common random
+// numbers; DEVELOPERS.md, "Sweeps"). What a sweep then shares:
+//   * a swept key that does not enter a stream's computation leaves that stream's output identical:
+//     sweeping the loggers (logging.*) keeps worlds, pilot data, evaluation histories, planner
+//     points, rollouts and every pilot-only fit identical, so pilot-only rows are the same in
+//     every scenario and only the logged data (same uniforms, another decision rule) differ;
+//   * a key that changes the world's draw (environment sizes, dynamics_concentration,
+//     observation_noise) draws it from the same stream, so the worlds are coupled but not the
+//     same: observation_noise only rescales the same Dirichlet noise (initial distribution,
+//     dynamics and rewards stay the same); sizes and dynamics_concentration change how many
+//     numbers are consumed, and what follows differs. horizon and discount do not enter the draw:
+//     the worlds are the same, the episodes (of another length) are not;
+//   * environment.draws and replicates: scenario k's draws and replicates are the first ones of a
+//     scenario with more.
+// A study without a sweep has one scenario, index 0: its streams are those of earlier versions.
+// `scenario` is taken, and ignored, so that every call site says which unit it keys.
+constexpr StreamKey unit_stream_key(std::uint64_t study_seed, int /*scenario*/, int draw, int replicate) {
+  return StreamKey{study_seed, 0, static_cast<std::uint64_t>(draw), static_cast<std::uint64_t>(replicate)};
 }
 
 }  // namespace dobudget

@@ -13,6 +13,9 @@ double quantile_type7(std::vector<double> v, double p) {
   const double h = (static_cast<double>(v.size()) - 1.0) * p;
   const auto lo = static_cast<std::size_t>(std::floor(h));
   const std::size_t hi = std::min(lo + 1, v.size() - 1);
+  // An infinite value (a model giving probability 0, or a cell with no data) absorbs: no inf - inf.
+  if (v[lo] == v[hi] || std::isinf(v[lo])) return v[lo];
+  if (std::isinf(v[hi])) return h == static_cast<double>(lo) ? v[lo] : v[hi];
   return v[lo] + (h - static_cast<double>(lo)) * (v[hi] - v[lo]);
 }
 
@@ -45,7 +48,9 @@ std::vector<CellSummary> summarise(const std::vector<RunRecord>& rows, Measure m
     c.mean = s / static_cast<double>(v.size());
     double ss = 0.0;
     for (double x : v) ss += (x - c.mean) * (x - c.mean);
-    c.sd = v.size() > 1 ? std::sqrt(ss / static_cast<double>(v.size() - 1)) : 0.0;
+    c.sd = !std::isfinite(c.mean) ? std::nan("")  // undefined with an infinite value
+           : v.size() > 1         ? std::sqrt(ss / static_cast<double>(v.size() - 1))
+                                  : 0.0;
     c.median = quantile_type7(v, 0.5);
     c.q10 = quantile_type7(v, 0.1);
     c.q90 = quantile_type7(v, 0.9);

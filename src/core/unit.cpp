@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <chrono>
+#include <limits>
 #include <map>
 #include <tuple>
 
@@ -41,21 +42,24 @@ FitKey fit_key(Strategy s, int logged, int pilot) {
 }  // namespace
 
 // The distinct fit_key()s of a unit, counted (see the header): the pilot-only fit at each pilot
-// budget when some cell maps to it, and one fit per (other strategy, logged budget > 0, pilot budget).
+// budget above 0 when some cell maps to it (pilot budget 0 without logged episodes has no data and
+// is not fitted), and one fit per (other strategy, logged budget > 0, pilot budget).
 long long fits_per_unit(const ScenarioSettings& s) {
   const auto P = static_cast<long long>(s.pilot_budgets.size());
+  const auto P_data = static_cast<long long>(
+      std::count_if(s.pilot_budgets.begin(), s.pilot_budgets.end(), [](int n) { return n > 0; }));
   const auto k = static_cast<long long>(
       std::count_if(s.strategies.begin(), s.strategies.end(), [](Strategy st) { return st != Strategy::pilot_only; }));
   const auto logged = static_cast<long long>(
       std::count_if(s.logged_budgets.begin(), s.logged_budgets.end(), [](int L) { return L > 0; }));
   const bool pilot_only_fit = k < static_cast<long long>(s.strategies.size()) ||
                               logged < static_cast<long long>(s.logged_budgets.size());
-  return P * ((pilot_only_fit ? 1 : 0) + k * logged);
+  return (pilot_only_fit ? P_data : 0) + P * k * logged;
 }
 
 DrawContext make_draw_context(const Study& study, int scenario, int draw, const StopToken& stop) {
   const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(scenario)].settings;
-  const StreamKey key{study.seed, static_cast<std::uint64_t>(scenario), static_cast<std::uint64_t>(draw), 0};
+  const StreamKey key = unit_stream_key(study.seed, scenario, draw, 0);
   DrawContext c;
   c.environment = make_environment(s, key);
   for (Measure m : s.measures)
@@ -67,8 +71,7 @@ DrawContext make_draw_context(const Study& study, int scenario, int draw, const 
 std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawContext& ctx, const StopToken& stop) {
   const ScenarioSettings& s = study.scenarios[static_cast<std::size_t>(u.scenario)].settings;
   const Environment& env = ctx.environment;
-  const StreamKey key{study.seed, static_cast<std::uint64_t>(u.scenario), static_cast<std::uint64_t>(u.draw),
-                      static_cast<std::uint64_t>(u.replicate)};
+  const StreamKey key = unit_stream_key(study.seed, u.scenario, u.draw, u.replicate);  // paired scenarios
 
   stop.poll();  // a unit started after a stop does nothing
   // Nested data: every budget is a prefix of the largest budget's episodes.
@@ -100,6 +103,17 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
       for (int n : s.pilot_budgets) {
         const FitKey k = fit_key(st, L, n);
         auto it = cells.find(k);
+        if (it == cells.end() && k.strategy == Strategy::pilot_only && k.pilot == 0) {
+          // No data at all (pilot budget 0, no logged episodes used): nothing is fitted, and the
+          // cell fails every target (+infinity), or is empty where the draw leaves no room for
+          // planning, like every other fit of the draw.
+          Cell c;
+          c.note = kNoData;
+          if (want_kl) c.kl = std::numeric_limits<double>::infinity();
+          if (want_gap && ctx.return_gap->room) c.gap = std::numeric_limits<double>::infinity();
+          if (want_gap && !ctx.return_gap->room) c.note = ctx.return_gap->note;
+          it = cells.emplace(k, std::move(c)).first;
+        }
         if (it == cells.end()) {
           std::vector<DataView> views{{&pilot, n, Regime::pilot}};
           if (k.strategy != Strategy::pilot_only)

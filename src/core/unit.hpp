@@ -25,10 +25,11 @@ struct UnitId {
 std::vector<UnitId> enumerate_units(const Study& study);
 
 // Number of model fits a unit performs (fits whose data coincide are shared: pilot-only ignores
-// logged data, and with no logged episodes every strategy is the pilot-only fit). In closed form,
-// without enumerating the cells (P pilot budgets, k listed strategies other than pilot-only,
-// L+ logged budgets above 0):
-//   fits = P x ([pilot-only is listed or 0 is a logged budget] + k x L+).
+// logged data, and with no logged episodes every strategy is the pilot-only fit; a cell with no
+// data at all, pilot budget 0 without logged episodes, is not fitted). In closed form, without
+// enumerating the cells (P pilot budgets, P+ of them above 0, k listed strategies other than
+// pilot-only, L+ logged budgets above 0):
+//   fits = P+ x [pilot-only is listed or 0 is a logged budget] + P x k x L+.
 long long fits_per_unit(const ScenarioSettings& s);
 
 struct ReturnGapReference;  // return_gap.hpp
@@ -41,6 +42,11 @@ struct DrawContext {
 
 // `stop` (stop.hpp) is polled throughout; a requested stop throws Cancelled and nothing is returned.
 DrawContext make_draw_context(const Study& study, int scenario, int draw, const StopToken& stop = {});
+
+// The note of a cell with no data at all (pilot budget 0 and no logged episodes used, e.g.
+// pilot-only at pilot 0): nothing is fitted, loglik is 0 (log 1), iterations 0, not converged,
+// and every measure is +infinity (a failure for every target; answer.hpp).
+inline constexpr const char* kNoData = "no data: nothing fitted";
 
 // Runs one unit. Rows come in the order strategy (as listed in the settings), logged budget,
 // pilot budget. `stop` is polled in every long loop (fits, model_kl, planner, rollouts): a unit

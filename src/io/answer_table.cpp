@@ -52,14 +52,50 @@ std::string human_value(const std::optional<double>& x, const char* spec = "{:.4
 
 std::string human_needed(const AnswerRow& r) {
   const std::string n = human_episodes(r.needed_pilot);
-  if (r.status == AnswerStatus::met_at_smallest) return "<= " + n;
+  // Met at a smallest budget of 0 is exact: no pilot episodes are needed.
+  if (r.status == AnswerStatus::met_at_smallest && r.needed_pilot > 0.0) return "<= " + n;
   if (r.status == AnswerStatus::not_reached) return "> largest budget";
   return n;
 }
 
+// An interval whose lower end lies below the smallest simulated budget (the crossing may be
+// anywhere down to 0) shows that end as an upper bound, `<= n`; if the upper end is that budget
+// too, the whole interval is `<= n`.
 std::string human_interval(const AnswerRow& r) {
   if (std::isnan(r.low) && std::isnan(r.high)) return "-";
-  return fmt::format("[{}, {}]", human_episodes(r.low), human_episodes(r.high));
+  const bool below_grid = r.smallest > 0.0 && r.low < r.smallest;
+  const std::string low = below_grid ? "<= " + human_episodes(r.smallest) : human_episodes(r.low);
+  if (below_grid && r.high <= r.smallest) return low;
+  return fmt::format("[{}, {}]", low, human_episodes(r.high));
+}
+
+bool same_number(double a, double b) { return a == b || (std::isnan(a) && std::isnan(b)); }
+
+// Same scenario and query (measure, target, assurance, criterion, interval).
+bool same_query(const AnswerRow& a, const AnswerRow& b) {
+  return a.scenario == b.scenario && a.measure == b.measure && a.target == b.target &&
+         same_number(a.assurance, b.assurance) && a.criterion == b.criterion && a.interval == b.interval;
+}
+
+// The same answer: need, interval and status.
+bool same_answer(const AnswerRow& a, const AnswerRow& b) {
+  return same_number(a.needed_pilot, b.needed_pilot) && same_number(a.low, b.low) && same_number(a.high, b.high) &&
+         a.status == b.status;
+}
+
+// Fewer draws than few_draws (answer.hpp) from the synthetic family: the smallest such count, or 0.
+int fewest_draws(const std::vector<AnswerRow>& rows) {
+  int fewest = 0;
+  for (const auto& r : rows)
+    if (r.family_draws && r.draws < few_draws && (fewest == 0 || r.draws < fewest)) fewest = r.draws;
+  return fewest;
+}
+
+std::string few_draws_warning(int draws) {
+  return fmt::format(
+      "these answers rest on {} environment draw{} (fewer than {}): the intervals understate the spread between "
+      "worlds; raise environment.draws for intervals that cover",
+      draws, draws == 1 ? "" : "s", few_draws);
 }
 
 std::string percent(double x) { return fmt::format("{:g}%", std::round(x * 1000.0) / 10.0); }
@@ -83,15 +119,53 @@ GroupKey group_key(const AnswerRow& r) {
 
 }  // namespace
 
+ReadableAnswers readable_answers(const std::vector<AnswerRow>& rows) {
+  ReadableAnswers out;
+  auto pilot_only_of = [&](const AnswerRow& r) -> const AnswerRow* {  // the first pilot-only row of r's query
+    for (const auto& p : rows)
+      if (p.strategy == Strategy::pilot_only && same_query(p, r)) return &p;
+    return nullptr;
+  };
+  for (const auto& r : rows) {
+    const AnswerRow* p = pilot_only_of(r);
+    if (r.strategy == Strategy::pilot_only) {
+      // Once, if every pilot-only row of the query gives the same answer (it ignores logged data).
+      bool all_same = true;
+      for (const auto& q : rows)
+        if (q.strategy == Strategy::pilot_only && same_query(q, r)) all_same = all_same && same_answer(q, r);
+      if (all_same && p != &r) {
+        ++out.left_out;
+        continue;
+      }
+      out.rows.push_back(r);
+      out.logged.push_back(all_same ? std::string("any") : std::to_string(r.logged));
+      continue;
+    }
+    if (r.logged == 0 && p != nullptr && same_answer(*p, r)) {  // the pilot-only fit: shown once already
+      ++out.left_out;
+      continue;
+    }
+    out.rows.push_back(r);
+    out.logged.push_back(std::to_string(r.logged));
+  }
+  return out;
+}
+
+std::string_view readable_answers_note() {
+  return "pilot-only is shown once (logged: any; it ignores logged data) and other strategies at logged 0 are left "
+         "out (the same fit as pilot-only); answer.csv keeps every row";
+}
+
 std::string_view answer_csv_header() {
   return "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
-         "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion";
+         "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws";
 }
 
 std::string answer_csv_line(const AnswerRow& r) {
-  return fmt::format("{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}", r.scenario, name(r.measure), cell(r.target), cell(r.assurance),
-                     name(r.strategy), r.logged, cell(r.needed_pilot), cell(r.low), cell(r.high), name(r.status),
-                     cell(r.floor), cell(r.saved_vs_pilot_only), cell(r.exchange_rate), r.pairs, name(r.criterion));
+  return fmt::format("{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}", r.scenario, name(r.measure), cell(r.target),
+                     cell(r.assurance), name(r.strategy), r.logged, cell(r.needed_pilot), cell(r.low), cell(r.high),
+                     name(r.status), cell(r.floor), cell(r.saved_vs_pilot_only), cell(r.exchange_rate), r.pairs,
+                     name(r.criterion), r.draws);
 }
 
 void write_answer_csv(const std::filesystem::path& path, const std::vector<AnswerRow>& rows) {
@@ -113,20 +187,23 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
       "meets the target, for each logged budget. Budgets are in episodes; needed values are rounded up to "
       "whole episodes here (answer.csv keeps the unrounded values).\n";
   if (rows.empty()) s += "\nNo answers: no run records with values for the requested measures.\n";
+  const ReadableAnswers readable = readable_answers(rows);
+  if (readable.left_out > 0) s += fmt::format("\nIn the tables below, {}.\n", readable_answers_note());
 
   // Groups in order of first appearance.
   std::vector<GroupKey> keys;
-  for (const auto& r : rows)
+  for (const auto& r : readable.rows)
     if (std::find(keys.begin(), keys.end(), group_key(r)) == keys.end()) keys.push_back(group_key(r));
   int current_scenario = -1;
   bool any_extrapolated = false;
   for (const auto& key : keys) {
     const int sc = std::get<0>(key);
     const AnswerRow* first = nullptr;
-    for (const auto& r : rows)
+    std::vector<AnswerRow> group;
+    for (const auto& r : readable.rows)
       if (group_key(r) == key) {
-        first = &r;
-        break;
+        if (first == nullptr) first = &r;
+        group.push_back(r);
       }
     if (sc != current_scenario || current_scenario == -1) {
       current_scenario = sc;
@@ -139,18 +216,20 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
                      first->criterion == Criterion::mean ? std::string("mean criterion")
                                                          : "assurance " + percent(first->assurance),
                      criterion_sentence(*first));
+    if (const int fewest = fewest_draws(group); fewest > 0) s += fmt::format("**Few environment draws**: {}.\n\n", few_draws_warning(fewest));
     s += fmt::format(
         "| strategy | logged | needed pilot | {} interval | status | floor | saved vs pilot-only | "
-        "saved per logged episode | pairs |\n",
+        "saved per logged episode | pairs | draws |\n",
         percent(first->interval));
-    s += "|---|---:|---:|---|---|---:|---:|---:|---:|\n";
-    for (const auto& r : rows) {
+    s += "|---|---:|---:|---|---|---:|---:|---:|---:|---:|\n";
+    for (std::size_t i = 0; i < readable.rows.size(); ++i) {
+      const AnswerRow& r = readable.rows[i];
       if (group_key(r) != key) continue;
       any_extrapolated = any_extrapolated || r.status == AnswerStatus::extrapolated;
-      s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.strategy), r.logged,
+      s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.strategy), readable.logged[i],
                        human_needed(r), human_interval(r), name(r.status), human_value(r.floor),
                        human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"),
-                       r.pairs);
+                       r.pairs, r.draws);
     }
   }
 
@@ -159,11 +238,13 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
          "needs the most pilot episodes: the budget to plan for when the swept quantity is unknown.\n\n";
     s += "| measure | target | criterion | strategy | logged | needed pilot | interval | status | worst at |\n";
     s += "|---|---:|---|---|---:|---:|---|---|---|\n";
-    for (const auto& r : worst_case_over_scenarios(rows)) {
+    const ReadableAnswers worst = readable_answers(worst_case_over_scenarios(rows));
+    for (std::size_t i = 0; i < worst.rows.size(); ++i) {
+      const AnswerRow& r = worst.rows[i];
       const auto sc = static_cast<std::size_t>(r.scenario);
       s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.measure), r.target,
                        r.criterion == Criterion::mean ? std::string("mean") : "assurance " + percent(r.assurance),
-                       name(r.strategy), r.logged, human_needed(r), human_interval(r), name(r.status),
+                       name(r.strategy), worst.logged[i], human_needed(r), human_interval(r), name(r.status),
                        sc < scenario_labels.size() ? markdown_text(scenario_labels[sc]) : std::to_string(r.scenario));
     }
   }
@@ -179,7 +260,8 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
   interpolated the same way.
 * **status**:
   * `met-at-smallest`: the criterion already holds at the smallest simulated budget. The value
-    shown (`<= n`) is an upper bound: fewer pilot episodes may do, but the simulation cannot tell.
+    shown (`<= n`) is an upper bound: fewer pilot episodes may do, but the simulation cannot tell
+    (a smallest budget of 0 is exact: no pilot episodes are needed).
   * `reached`: the criterion is met between two simulated budgets (interpolated).
   * `extrapolated`: even the largest simulated budget falls short; a learning curve
     e(n) = c + a n^(-b) fitted to the measure across budgets (to its assurance-quantile under
@@ -189,11 +271,14 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
   * `unreachable`: the fitted floor c is at or above the target: more pilot episodes of this kind
     are not expected to get there (needed = inf). The floor is shown.
   * `not-reached`: the largest budget falls short and too few budgets have data to fit a curve.
-* **interval**: percentile bootstrap interval over resampled (environment draw, replicate) pairs;
-  each resample recomputes the whole answer. Resamples that never reach the target count as
-  infinite, so an end of `inf` means that a sizeable share of resamples did not reach it. The
-  interval reflects the spread between environment draws and replicates only, not the error of
-  interpolating between the simulated budgets (which can dominate on a coarse grid).
+* **interval**: two-stage percentile bootstrap interval: each resample draws environment draws
+  with replacement, then replicates with replacement within each drawn world, and recomputes the
+  whole answer. It also carries where the crossing lies between the two simulated budgets around
+  it: each resample counts from the budget below its crossing to the budget above, so the interval
+  is at least as wide as the gap between simulated budgets there, and narrows only with budgets
+  closer together. A lower end `<= n` lies below the smallest simulated budget; resamples that
+  never reach the target count as infinite, so an end of `inf` means that a sizeable share of
+  resamples did not reach it.
 * **floor**: the fitted c, shown whenever a learning curve was fitted.
 * **saved vs pilot-only**: pilot episodes saved by using the logged episodes this way, against
   pilot-only (which ignores logged data); negative when the strategy needs more. **saved per logged
@@ -201,6 +286,9 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
 * **pairs**: the (environment draw, replicate) pairs with a value of the measure. Pairs without one
   (e.g. `return_gap` when planning cannot beat the uniform policy by a meaningful margin) are left
   out of every fraction and mean.
+* **draws**: the environment draws (worlds) the pairs come from. Most of the spread can lie between
+  worlds, which only more draws reveal: with fewer than 10 draws of the synthetic family, the
+  interval understates it (a given model is one world: its interval covers replicates only).
 )";
   if (any_extrapolated)
     s += "\nSome answers above are extrapolated beyond the simulated budgets; see `extrapolated`.\n";
@@ -256,16 +344,17 @@ std::vector<std::string> scenario_cells(const Study* study, int scenario) {
   return c;
 }
 
-std::vector<std::string> answer_cells(const AnswerRow& r) {
+std::vector<std::string> answer_cells(const AnswerRow& r, const std::string& logged) {
   const std::string crit = r.criterion == Criterion::mean ? std::string("mean") : fmt::format("assurance {}", r.assurance);
   return {std::string(name(r.measure)), fmt::format("{}", r.target), crit, std::string(name(r.strategy)),
-          std::to_string(r.logged), human_needed(r), human_interval(r), std::string(name(r.status)),
-          human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"), std::to_string(r.pairs)};
+          logged, human_needed(r), human_interval(r), std::string(name(r.status)),
+          human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"), std::to_string(r.pairs),
+          std::to_string(r.draws)};
 }
 
 const std::vector<std::string> answer_header{"measure", "target", "criterion", "strategy", "logged", "needed",
-                                             "interval", "status", "saved", "per logged", "pairs"};
-const std::vector<bool> answer_right{false, true, false, false, true, true, false, false, true, true, true};
+                                             "interval", "status", "saved", "per logged", "pairs", "draws"};
+const std::vector<bool> answer_right{false, true, false, false, true, true, false, false, true, true, true, true};
 
 }  // namespace
 
@@ -296,20 +385,26 @@ std::string format_answer_table(const std::vector<AnswerRow>& rows, const Study*
   std::vector<bool> right(sh.size(), sh.size() == 1 && sh.front() == "scenario");
   right.insert(right.end(), answer_right.begin(), answer_right.end());
   cells.push_back(header);
-  for (const auto& r : rows) {
+  const ReadableAnswers readable = readable_answers(rows);
+  for (std::size_t i = 0; i < readable.rows.size(); ++i) {
+    const AnswerRow& r = readable.rows[i];
     auto line = scenario_cells(study, r.scenario);
-    const auto a = answer_cells(r);
+    const auto a = answer_cells(r, readable.logged[i]);
     line.insert(line.end(), a.begin(), a.end());
     cells.push_back(line);
   }
   std::string s = aligned(cells, right);
+  if (readable.left_out > 0) s += fmt::format("({})\n", readable_answers_note());
+  if (const int fewest = fewest_draws(rows); fewest > 0) s += fmt::format("warning: {}\n", few_draws_warning(fewest));
   if (study != nullptr && study->scenarios.size() > 1) {
     std::vector<std::vector<std::string>> w;
     std::vector<std::string> h = answer_header;
     h.insert(h.begin(), "worst at");
     w.push_back(h);
-    for (const auto& r : worst_case_over_scenarios(rows)) {
-      auto line = answer_cells(r);
+    const ReadableAnswers worst = readable_answers(worst_case_over_scenarios(rows));
+    for (std::size_t i = 0; i < worst.rows.size(); ++i) {
+      const AnswerRow& r = worst.rows[i];
+      auto line = answer_cells(r, worst.logged[i]);
       line.insert(line.begin(), printable_line(study->scenarios.at(static_cast<std::size_t>(r.scenario)).label));
       w.push_back(line);
     }

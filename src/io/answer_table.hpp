@@ -2,7 +2,7 @@
 //
 // answer.csv columns (the design fixes the first ten; later ones are appended, never reordered):
 //   scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,
-//   floor,saved_vs_pilot_only,exchange_rate,pairs,criterion
+//   floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws
 // Numbers are written with fmt "{}": the shortest decimal that reads back to the same double
 // (so a parse round-trips exactly); infinities as "inf" / "-inf"; missing values (std::nullopt
 // or NaN: e.g. the assurance under the mean criterion, needed_pilot when not-reached, the
@@ -32,6 +32,20 @@ std::string_view answer_csv_header();
 std::string answer_csv_line(const AnswerRow& row);
 
 void write_answer_csv(const std::filesystem::path& path, const std::vector<AnswerRow>& rows);
+
+// What the readable tables show (answer.md, the terminal; answer.csv keeps every row): pilot-only
+// once per scenario and query, with logged shown as "any", when its answers at every logged budget
+// agree (it ignores logged data, so they do); and no other strategy at logged budget 0 whose answer
+// is pilot-only's (with no logged episodes it is the pilot-only fit). `logged` is the logged cell
+// shown for each row; `left_out` counts the rows left out.
+struct ReadableAnswers {
+  std::vector<AnswerRow> rows;
+  std::vector<std::string> logged;
+  int left_out = 0;
+};
+ReadableAnswers readable_answers(const std::vector<AnswerRow>& rows);
+// The line that says so, when left_out > 0.
+std::string_view readable_answers_note();
 
 // A readable page: one table per scenario and query (measure, target, assurance, criterion), the
 // criterion stated, the statuses explained, and the caution paragraph. scenario_labels[i] labels

@@ -11,6 +11,7 @@
 
 #include "io/atomic_file.hpp"
 #include "io/csv.hpp"
+#include "core/unit.hpp"
 #include "io/input_error.hpp"
 #include "io/regular_file.hpp"
 
@@ -121,7 +122,9 @@ RunRecord parse_runs_line(const std::string& line, const std::string& source, in
   r.model_kl = cells.optional_number(6);
   if (r.model_kl && !(*r.model_kl >= 0.0)) cells.fail(6, "must be at least 0, got " + c[6]);
   r.return_gap = cells.optional_number(7);
-  if (r.return_gap && !std::isfinite(*r.return_gap)) cells.fail(7, "must be a finite number or empty, got " + c[7]);
+  // +inf only for a cell with no data (pilot budget 0 without logged episodes: unit.hpp, kNoData).
+  if (r.return_gap && !std::isfinite(*r.return_gap) && !(*r.return_gap > 0.0 && c[11] == kNoData))
+    cells.fail(7, "must be a finite number or empty, got " + c[7]);
   r.loglik = cells.number(8);
   if (std::isnan(r.loglik)) cells.fail(8, "must be a number, got nan");
   r.iterations = cells.count(9);

@@ -8,7 +8,8 @@
 // is an InputError naming the file, the line and the column:
 //   runs.csv:14: model_kl: must be at least 0, got -0.3
 // Ranges: scenario, environment, replicate, logged, pilot and iterations are integers >= 0;
-// strategy is a known strategy; model_kl is empty or a number >= 0; return_gap is empty or finite;
+// strategy is a known strategy; model_kl is empty or a number >= 0 (or inf); return_gap is empty or
+// finite, or inf with the note of a cell with no data (unit.hpp, kNoData);
 // loglik is a number (not nan); converged is 0 or 1; note holds no control character.
 // Whether the rows are the ones a study expects is checked by finished_run.hpp.
 #pragma once

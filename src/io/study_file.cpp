@@ -347,7 +347,13 @@ class StudyParser {
 
     const Section budgets = section(top, "budgets", budget_keys);
     s.logged_budgets = budget_list(budgets, "logged", s.logged_budgets, 0, max_budget);
-    s.pilot_budgets = budget_list(budgets, "pilot", s.pilot_budgets, 1, max_budget);
+    s.pilot_budgets = budget_list(budgets, "pilot", s.pilot_budgets, 0, max_budget);
+    // A pilot budget of 0 fits the strategies that use logged data on logged data alone, so it
+    // needs logged episodes (pilot-only with no data counts as not meeting the target: unit.hpp).
+    if (s.pilot_budgets.front() == 0 && s.logged_budgets.back() == 0)
+      in_.fail(in_.items(*get(budgets, "pilot")).front(),
+               "is 0 pilot episodes, which needs logged episodes (budgets.logged has none above 0): with neither, "
+               "there is no data to fit; give a pilot budget of at least 1 or logged budgets above 0");
 
     s.replicates = whole(top, "replicates", s.replicates, 1, max_replicates);
     s.strategies = name_list(top, "strategies", "strategy", s.strategies, strategy_names(), parse_strategy);

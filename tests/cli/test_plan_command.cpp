@@ -62,6 +62,7 @@ TEST_CASE("plan: bad input exits with code 2, names file, line and key, and writ
       {"name: x\nenvironment: { states: 0 }\n", "environment.states", ":2:"},
       {"name: x\nenvironmnt: { states: 3 }\n", "environment", ":2:"},  // unknown key, suggestion names the right one
       {"name: x\nbudgets:\n  pilot: [10, 5]\n", "budgets.pilot", ":3:"},
+      {"name: x\nbudgets:\n  logged: [0]\n  pilot: [0, 10]\n", "budgets.pilot", ":4:"},  // 0 pilot, 0 logged: no data
       {"name: x\nenvironment: { states: four }\n", "environment.states", ":2:"},
       {"name: x\nenvironment: [1, 2\n", "malformed", ":3:"},  // malformed YAML: yaml-cpp reports where it noticed (end of file)
   };
@@ -142,4 +143,27 @@ targets: { model_kl: 0.05, return_gap: 0.1 }
     CHECK(line.substr(line.size() - 21) == ",no room for planning");
   }
   CHECK(rows == 2 * 3 * 2 * 2);
+}
+
+TEST_CASE("plan: a pilot budget of 0 with logged episodes", "[cli][plan][budget0]") {
+  // Issue 10, item 4: budgets.pilot may include 0 when the study has logged episodes. pilot-only
+  // (and every strategy at logged 0) has no data there: its rows say so and count as failures;
+  // the strategies using the logged episodes are fitted on them alone. runs.csv reads back
+  // (`answer` recomputes the same answer.csv), and the tables show pilot-only once.
+  Scratch s("budget0");
+  std::string study = tiny_study;
+  study.replace(study.find("pilot: [5, 20]"), 14, "pilot: [0, 5, 20]");
+  write(s / "study.yaml", study);
+  auto p = run("plan " + (s / "study.yaml").string() + " --quiet --out " + (s / "run").string());
+  INFO(p.out);
+  REQUIRE(p.code == 0);
+  const std::string runs = slurp(s / "run" / "runs.csv");
+  CHECK(runs.find(",pilot-only,0,0,inf,,0,0,0,no data: nothing fitted\n") != std::string::npos);
+  CHECK(runs.find(",regime-aware,60,0,") != std::string::npos);
+  CHECK(runs.find(",regime-aware,60,0,inf") == std::string::npos);  // fitted on logged data: finite
+  const std::string csv = slurp(s / "run" / "answer.csv");
+  auto a = run("answer " + (s / "run").string());
+  REQUIRE(a.code == 0);
+  CHECK(slurp(s / "run" / "answer.csv") == csv);
+  CHECK(p.out.find("pilot-only is shown once") != std::string::npos);
 }

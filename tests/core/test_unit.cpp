@@ -269,3 +269,104 @@ TEST_CASE("unit: fits_per_unit counts 10^5 x 10^5 budgets at once, in 64 bits", 
   const double SP = 5000050000.0, SL = 4999950000.0;
   CHECK(observations_per_unit(s) == (SP + 2.0 * (99999.0 * SP + 100000.0 * SL)) * (s.environment.horizon + 1));
 }
+
+TEST_CASE("unit: paired scenarios — a logging.privilege sweep shares worlds, pilot data and pilot-only fits",
+          "[unit][paired]") {
+  // seeding.hpp (unit_stream_key): every scenario of a sweep uses the same streams. pilot-only
+  // ignores the logged data, and the privilege enters nothing but the logger, so its rows must be
+  // identical in every field of runs.csv but the scenario; the regime-aware rows, which fit the
+  // logged data, must differ (the test can fail both ways).
+  Study st = un_study(3, 2, 3, 4, 3);
+  st.scenarios[0].settings.environment.draws = 2;
+  st.scenarios[0].settings.logging.privilege = 0.5;
+  Scenario other = st.scenarios[0];
+  other.index = 1;
+  other.settings.logging.privilege = 0.95;
+  st.scenarios.push_back(other);
+  int pilot_only_rows = 0, differing_logged_rows = 0;
+  for (int d = 0; d < 2; ++d) {
+    const DrawContext c0 = make_draw_context(st, 0, d), c1 = make_draw_context(st, 1, d);
+    CHECK(c0.environment.model.transitions[0] == c1.environment.model.transitions[0]);  // the same world
+    CHECK(c0.environment.model.emissions == c1.environment.model.emissions);
+    CHECK(c0.environment.logging_policy != c1.environment.logging_policy);  // another logger
+    for (int r = 0; r < 2; ++r) {
+      const auto a = run_unit(st, UnitId{0, d, r}, c0), b = run_unit(st, UnitId{1, d, r}, c1);
+      REQUIRE(a.size() == b.size());
+      for (std::size_t i = 0; i < a.size(); ++i) {
+        INFO("draw " << d << " replicate " << r << " row " << i << ": " << name(a[i].strategy) << " logged "
+                     << a[i].logged << " pilot " << a[i].pilot);
+        CHECK(a[i].scenario == 0);
+        CHECK(b[i].scenario == 1);
+        RunRecord same = b[i];
+        same.scenario = 0;
+        if (a[i].strategy == Strategy::pilot_only || a[i].logged == 0) {
+          CHECK(un_same_row(a[i], same));
+          ++pilot_only_rows;
+        } else if (a[i].strategy == Strategy::regime_aware && !un_same_row(a[i], same)) {
+          ++differing_logged_rows;
+        }
+      }
+    }
+  }
+  // Per unit: pilot-only at both logged budgets and the other two strategies at logged 0, at both
+  // pilot budgets (8 rows); 2 draws x 2 replicates.
+  CHECK(pilot_only_rows == 4 * 8);
+  CHECK(differing_logged_rows > 0);
+}
+
+TEST_CASE("unit: paired scenarios — an observation_noise sweep rescales the same world", "[unit][paired]") {
+  // seeding.hpp: the world of each draw comes from the same stream in every scenario; the noise
+  // only scales the same Dirichlet draw (synthetic.hpp: E = (1 - noise) onehot + noise D), so the
+  // initial distribution, the dynamics and the rewards are identical and E - onehot scales with noise.
+  Study st = un_study(3, 2, 3, 4, 3);
+  Scenario other = st.scenarios[0];
+  other.index = 1;
+  other.settings.environment.family.observation_noise = 0.6;
+  st.scenarios.push_back(other);
+  const Pomdp a = make_draw_context(st, 0, 0).environment.model, b = make_draw_context(st, 1, 0).environment.model;
+  CHECK(a.initial == b.initial);
+  for (std::size_t k = 0; k < a.transitions.size(); ++k) CHECK(a.transitions[k] == b.transitions[k]);
+  CHECK(a.rewards == b.rewards);
+  for (int s = 0; s < 3; ++s)
+    for (int o = 0; o < 3; ++o) {
+      const double one = o == s % 3 ? 1.0 : 0.0;
+      CHECK((b.emissions(s, o) - one) == Approx(2.0 * (a.emissions(s, o) - one)).margin(1e-12));
+    }
+}
+
+TEST_CASE("unit: a pilot budget of 0 fits on logged data alone; pilot-only has no data", "[unit][budget0]") {
+  // unit.hpp (kNoData): with no data at all nothing is fitted and every measure is +infinity (a
+  // failure for every target); pooled and regime-aware at logged 50 and pilot 0 are real fits of
+  // the logged episodes alone, with a finite model_kl and a log-likelihood below 0.
+  Study st = un_study(3, 2, 3, 4, 3);
+  st.scenarios[0].settings.pilot_budgets = {0, 5};
+  const auto rows = un_run(st, 0);
+  REQUIRE(rows.size() == 3 * 2 * 2);
+  int no_data = 0, logged_only = 0;
+  for (const auto& r : rows) {
+    INFO(name(r.strategy) << " logged " << r.logged << " pilot " << r.pilot);
+    if (r.pilot != 0) {
+      CHECK(r.note.empty());
+      continue;
+    }
+    if (r.strategy == Strategy::pilot_only || r.logged == 0) {
+      CHECK(r.note == kNoData);
+      REQUIRE(r.model_kl);
+      CHECK(std::isinf(*r.model_kl));
+      CHECK(r.loglik == 0.0);
+      CHECK(r.iterations == 0);
+      CHECK_FALSE(r.converged);
+      ++no_data;
+    } else {
+      CHECK(r.note.empty());
+      REQUIRE(r.model_kl);
+      CHECK(std::isfinite(*r.model_kl));
+      CHECK(r.loglik < 0.0);
+      CHECK(r.iterations > 0);
+      ++logged_only;
+    }
+  }
+  CHECK(no_data == 4);      // pilot-only at logged 0 and 50, pooled and regime-aware at logged 0
+  CHECK(logged_only == 2);  // pooled and regime-aware at logged 50
+  CHECK(fits_per_unit(st.scenarios[0].settings) == 1 + 2 * 2);  // pilot-only at 5 (nothing at 0); 2 strategies x 2 budgets at logged 50
+}

@@ -123,7 +123,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
   REQUIRE(std::getline(in, line));
   CHECK(line ==
         "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
-        "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion");
+        "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws");
   std::vector<std::vector<std::string>> parsed;
   while (std::getline(in, line)) parsed.push_back(split(line));
   REQUIRE(parsed.size() == rows.size());
@@ -131,7 +131,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
     const auto& c = parsed[i];
     const auto& r = rows[i];
     INFO("row " << i);
-    REQUIRE(c.size() == 15);
+    REQUIRE(c.size() == 16);
     CHECK(std::stoi(c[0]) == r.scenario);
     CHECK(parse_measure(c[1]) == r.measure);
     CHECK(same(parse(c[2]), r.target));
@@ -147,6 +147,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
     CHECK(parse_opt(c[12]) == r.exchange_rate);
     CHECK(std::stoi(c[13]) == r.pairs);
     CHECK(parse_criterion(c[14]) == r.criterion);
+    CHECK(std::stoi(c[15]) == r.draws);
   }
   // Spelling of special cells: "inf" for infinity, empty for missing.
   CHECK(parsed[1][8] == "inf");
@@ -262,4 +263,129 @@ TEST_CASE("answer.md: a hostile study name and labels are shown literally, on on
   std::size_t cautions = 0;
   for (auto p = md.find("\n## Caution"); p != std::string::npos; p = md.find("\n## Caution", p + 1)) ++cautions;
   CHECK(cautions == 1);
+}
+
+namespace {
+
+// One query's answers as compute_answers gives them for pilot-only, pooled and regime-aware at
+// logged 0 and 1000: pilot-only the same at both logged budgets (it ignores logged data), the other
+// two at logged 0 the same as pilot-only (the same fit).
+std::vector<AnswerRow> full_rows() {
+  AnswerRow p;
+  p.target = 0.02;
+  p.assurance = 0.8;
+  p.strategy = Strategy::pilot_only;
+  p.needed_pilot = 208.2;
+  p.low = 100;
+  p.high = 300;
+  p.pairs = 40;
+  p.draws = 12;
+  p.smallest = 10;
+  std::vector<AnswerRow> rows;
+  for (Strategy s : {Strategy::pilot_only, Strategy::pooled, Strategy::regime_aware})
+    for (int logged : {0, 1000}) {
+      AnswerRow r = p;
+      r.strategy = s;
+      r.logged = logged;
+      if (s != Strategy::pilot_only && logged == 1000) {
+        r.needed_pilot = s == Strategy::pooled ? 51.0 : 77.0;
+        r.low = 30;
+        r.high = 100;
+      }
+      rows.push_back(r);
+    }
+  return rows;
+}
+
+std::vector<std::string> lines_with(const std::string& text, const std::string& needle) {
+  std::vector<std::string> out;
+  std::istringstream in(text);
+  std::string line;
+  while (std::getline(in, line))
+    if (line.find(needle) != std::string::npos) out.push_back(line);
+  return out;
+}
+
+}  // namespace
+
+TEST_CASE("answer tables: pilot-only once, no strategy at logged 0, one line saying so; answer.csv keeps every row",
+          "[answer_table]") {
+  // Issue 10, item 5 (answer_table.hpp, readable_answers).
+  const auto rows = full_rows();
+  const auto shown = io::readable_answers(rows);
+  REQUIRE(shown.rows.size() == 3);
+  CHECK(shown.left_out == 3);
+  CHECK(shown.rows[0].strategy == Strategy::pilot_only);
+  CHECK(shown.logged[0] == "any");
+  CHECK(shown.rows[1].strategy == Strategy::pooled);
+  CHECK(shown.logged[1] == "1000");
+  CHECK(shown.rows[2].strategy == Strategy::regime_aware);
+
+  const std::string md = io::format_answer_md("example", {}, rows);
+  CHECK(lines_with(md, "| pilot-only |").size() == 1);
+  CHECK(lines_with(md, "| pilot-only | any | 209 | [100, 300] |").size() == 1);
+  CHECK(lines_with(md, "| pooled |").size() == 1);
+  CHECK(lines_with(md, "| pooled | 0 |").empty());
+  CHECK(md.find("pilot-only is shown once") != std::string::npos);
+
+  const std::string t = io::format_answer_table(rows);
+  CHECK(lines_with(t, "pilot-only").size() == 2);  // its row and the line saying so
+  CHECK(lines_with(t, "pooled").size() == 1);
+  CHECK(t.find("(pilot-only is shown once") != std::string::npos);
+
+  TempDir dir;
+  io::write_answer_csv(dir.path / "answer.csv", rows);
+  std::ifstream in(dir.path / "answer.csv");
+  int lines = 0;
+  for (std::string line; std::getline(in, line);) ++lines;
+  CHECK(lines == 1 + 6);
+
+  // A pooled answer at logged 0 that is not pilot-only's (not produced by compute_answers, but
+  // possible from edited rows) is shown, and nothing is said of rows that are not left out.
+  auto odd = rows;
+  odd[2].needed_pilot = 99.0;
+  CHECK(io::readable_answers(odd).rows.size() == 4);
+  CHECK(io::readable_answers({rows[3]}).left_out == 0);
+  CHECK(io::format_answer_table({rows[3]}).find("shown once") == std::string::npos);
+}
+
+TEST_CASE("answer tables: a lower end below the smallest budget reads as an upper bound; few draws warn",
+          "[answer_table]") {
+  // Issue 10, items 1 and 4: met at the smallest budget 10, the interval [0, 10] reads "<= 10"
+  // (not [10, 10]); [0, 30] reads "[<= 10, 30]"; a smallest budget of 0 met is exact ("0").
+  auto rows = full_rows();
+  AnswerRow r = rows[0];
+  r.status = AnswerStatus::met_at_smallest;
+  r.needed_pilot = 10;
+  r.low = 0;
+  r.high = 10;
+  AnswerRow wider = r;
+  wider.strategy = Strategy::pooled;
+  wider.logged = 1000;
+  wider.high = 30;
+  AnswerRow zero = r;
+  zero.strategy = Strategy::regime_aware;
+  zero.logged = 1000;
+  zero.smallest = 0;
+  zero.needed_pilot = 0;
+  zero.high = 0;
+  const std::string md = io::format_answer_md("example", {}, {r, wider, zero});
+  CHECK(lines_with(md, "| pilot-only | any | <= 10 | <= 10 | met-at-smallest |").size() == 1);
+  CHECK(lines_with(md, "| pooled | 1000 | <= 10 | [<= 10, 30] |").size() == 1);
+  CHECK(lines_with(md, "| regime-aware | 1000 | 0 | [0, 0] |").size() == 1);
+  CHECK(md.find("Few environment draws") == std::string::npos);  // 12 draws
+
+  // Fewer than 10 draws of the family: warned in both tables; a given model (one world) is not.
+  for (auto& x : rows) x.draws = 4;
+  const std::string few_md = io::format_answer_md("example", {}, rows);
+  CHECK(few_md.find("**Few environment draws**: these answers rest on 4 environment draws (fewer than 10)") !=
+        std::string::npos);
+  CHECK(lines_with(few_md, "| pilot-only | any | 209 | [100, 300] | reached | - | - | - | 40 | 4 |").size() == 1);
+  CHECK(io::format_answer_table(rows).find("warning: these answers rest on 4 environment draws") != std::string::npos);
+  for (auto& x : rows) {
+    x.draws = 1;
+    x.family_draws = false;
+  }
+  CHECK(io::format_answer_md("example", {}, rows).find("Few environment draws") == std::string::npos);
+  CHECK(io::format_answer_table(rows).find("warning") == std::string::npos);
 }

@@ -10,6 +10,7 @@
 #include <limits>
 
 #include "input_error_of.hpp"
+#include "core/unit.hpp"
 #include "io/runs_table.hpp"
 #include "temp_dir.hpp"
 
@@ -53,6 +54,18 @@ TEST_CASE("runs.csv line round trip is exact, subnormals and infinities included
   CHECK_FALSE(io::parse_runs_line(io::runs_line(empty)).model_kl.has_value());
   CHECK_THROWS(io::parse_runs_line("0,0,0,pooled,0,10,0.1x,,1,2,1,"));
   CHECK_THROWS(io::parse_runs_line("0,0,0,pooled,0,10,0.1,,1,2,1"));  // 11 cells
+}
+
+TEST_CASE("runs.csv: a cell with no data (pilot budget 0) reads back with infinite measures", "[runs_table][budget0]") {
+  // unit.hpp (kNoData): nothing fitted, every measure +inf. return_gap is otherwise finite or empty.
+  const std::string line = "0,1,2,pilot-only,0,0,inf,inf,0,0,0,no data: nothing fitted";
+  const RunRecord r = io::parse_runs_line(line);
+  CHECK(std::isinf(*r.model_kl));
+  CHECK(std::isinf(*r.return_gap));
+  CHECK(r.note == kNoData);
+  CHECK(io::runs_line(r) == line);
+  CHECK_THROWS(io::parse_runs_line("0,1,2,pilot-only,0,0,inf,inf,0,0,0,no room for planning"));
+  CHECK_THROWS(io::parse_runs_line("0,1,2,pilot-only,0,0,inf,-inf,0,0,0,no data: nothing fitted"));
 }
 
 TEST_CASE("runs.csv: every bad cell is refused with the file, the line and the column", "[runs_table]") {

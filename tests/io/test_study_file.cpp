@@ -366,7 +366,12 @@ TEST_CASE("budgets: non-empty, strictly increasing whole numbers", "[study_file]
               "must be larger than the previous budget (30)");
   check_error("budgets:\n  pilot: [10, 10]\n", 2, "budgets.pilot[1]", "must be larger than the previous budget (10)");
   check_error("budgets:\n  pilot:\n    - 10\n    - 0.5\n", 4, "budgets.pilot[1]", "expected a whole number, got '0.5'");
-  check_error("budgets:\n  pilot: [0, 10]\n", 2, "budgets.pilot[0]", "must be at least 1, got 0");
+  check_error("budgets:\n  pilot: [-1, 10]\n", 2, "budgets.pilot[0]", "must be at least 0, got -1");
+  // A pilot budget of 0 needs logged episodes (issue 10, item 4): the default logged budgets
+  // {0, 1000} have them, logged [0] has none.
+  CHECK(parse("budgets:\n  pilot: [0, 10]\n").scenarios[0].settings.pilot_budgets == std::vector<int>{0, 10});
+  check_error("budgets:\n  logged: [0]\n  pilot: [0, 10]\n", 3, "budgets.pilot[0]",
+              "is 0 pilot episodes, which needs logged episodes (budgets.logged has none above 0)");
   check_error("budgets:\n  logged: [-1, 10]\n", 2, "budgets.logged[0]", "must be at least 0, got -1");
   check_error("budgets:\n  logged: []\n", 2, "budgets.logged", "must list at least one budget");
   check_error("budgets:\n  pilot: 100\n", 2, "budgets.pilot", "expected a list, got '100'");
