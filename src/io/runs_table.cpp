@@ -51,13 +51,13 @@ std::string keys(const RunRecord& r) {
 }  // namespace
 
 std::string runs_line(const RunRecord& r) {
-  return fmt::format("{},{},{},{},{},{},{}", keys(r), csv_number(r.model_kl), csv_number(r.return_gap),
-                     csv_number(r.loglik), r.iterations, r.converged ? 1 : 0, r.note);
+  return fmt::format("{},{},{},{},{},{},{},{},{}", keys(r), csv_number(r.model_kl), csv_number(r.return_gap),
+                     csv_number(r.loglik), r.iterations, r.converged ? 1 : 0, r.note, r.starts, r.confirmed ? 1 : 0);
 }
 
 RunRecord parse_runs_line(const std::string& line) {
   const auto c = split(line);
-  if (c.size() != 12) throw std::runtime_error("expected 12 cells, found " + std::to_string(c.size()));
+  if (c.size() != 14) throw std::runtime_error("expected 14 cells, found " + std::to_string(c.size()));
   RunRecord r;
   try {
     r.scenario = std::stoi(c[0]);
@@ -74,6 +74,8 @@ RunRecord parse_runs_line(const std::string& line) {
     r.iterations = std::stoi(c[9]);
     r.converged = c[10] == "1";
     r.note = c[11];
+    r.starts = std::stoi(c[12]);
+    r.confirmed = c[13] == "1";
   } catch (const std::logic_error& e) {
     throw std::runtime_error(std::string("malformed number: ") + e.what());
   }
