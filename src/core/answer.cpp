@@ -383,6 +383,11 @@ std::vector<AnswerRow> compute_answers(const std::vector<RunRecord>& rows, int s
         row.floor = res.point.floor;
         row.pairs = res.pairs;
         row.interval = q.interval;
+        if (const auto g = groups.find({s, logged}); g != groups.end() && !g->second.empty()) {
+          std::size_t open = 0;
+          for (const RunRecord* r : g->second) open += r->confirmed ? 0 : 1;
+          row.unconfirmed = static_cast<double>(open) / static_cast<double>(g->second.size());
+        }
         out.push_back(row);
       }
     }

@@ -54,6 +54,8 @@ CostEstimate estimate_cost(const Study& study, int calibration_episodes) {
                             env.model, rng);
     ScenarioCost c;
     c.scenario = sc.index;
+    c.calibration_starts = f.starts;
+    c.calibration_confirmed = f.confirmed;
     c.seconds_per_observation = seconds_since(t_fit) / (static_cast<double>(n_pilot + n_logged) * (s.environment.horizon + 1));
     const auto t_measure = std::chrono::steady_clock::now();
     for (Measure m : s.measures) {

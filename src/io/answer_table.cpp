@@ -63,6 +63,8 @@ std::string human_interval(const AnswerRow& r) {
 
 std::string percent(double x) { return fmt::format("{:g}%", std::round(x * 1000.0) / 10.0); }
 
+std::string human_share(const std::optional<double>& x) { return x ? percent(*x) : std::string("-"); }
+
 std::string criterion_sentence(const AnswerRow& r) {
   if (r.criterion == Criterion::mean)
     return fmt::format("Criterion `mean`: the mean {} across (environment draw, replicate) pairs is at most {}.",
@@ -84,13 +86,14 @@ GroupKey group_key(const AnswerRow& r) {
 
 std::string_view answer_csv_header() {
   return "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
-         "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion";
+         "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,unconfirmed";
 }
 
 std::string answer_csv_line(const AnswerRow& r) {
-  return fmt::format("{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}", r.scenario, name(r.measure), cell(r.target), cell(r.assurance),
+  return fmt::format("{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}", r.scenario, name(r.measure), cell(r.target), cell(r.assurance),
                      name(r.strategy), r.logged, cell(r.needed_pilot), cell(r.low), cell(r.high), name(r.status),
-                     cell(r.floor), cell(r.saved_vs_pilot_only), cell(r.exchange_rate), r.pairs, name(r.criterion));
+                     cell(r.floor), cell(r.saved_vs_pilot_only), cell(r.exchange_rate), r.pairs, name(r.criterion),
+                     cell(r.unconfirmed));
 }
 
 void write_answer_csv(const std::filesystem::path& path, const std::vector<AnswerRow>& rows) {
@@ -139,16 +142,16 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
                      criterion_sentence(*first));
     s += fmt::format(
         "| strategy | logged | needed pilot | {} interval | status | floor | saved vs pilot-only | "
-        "saved per logged episode | pairs |\n",
+        "saved per logged episode | pairs | unconfirmed fits |\n",
         percent(first->interval));
-    s += "|---|---:|---:|---|---|---:|---:|---:|---:|\n";
+    s += "|---|---:|---:|---|---|---:|---:|---:|---:|---:|\n";
     for (const auto& r : rows) {
       if (group_key(r) != key) continue;
       any_extrapolated = any_extrapolated || r.status == AnswerStatus::extrapolated;
-      s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.strategy), r.logged,
+      s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.strategy), r.logged,
                        human_needed(r), human_interval(r), name(r.status), human_value(r.floor),
                        human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"),
-                       r.pairs);
+                       r.pairs, human_share(r.unconfirmed));
     }
   }
 
@@ -199,6 +202,10 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
 * **pairs**: the (environment draw, replicate) pairs with a value of the measure. Pairs without one
   (e.g. `return_gap` when planning cannot beat the uniform policy by a meaningful margin) are left
   out of every fraction and mean.
+* **unconfirmed fits**: the share of this row's model fits (every pair and pilot budget) whose best
+  optimum was reached by only one EM start, even after the most starts allowed (`fit.max_restarts`):
+  a better fit may exist, and the needed budget may then be too high. Above a few percent, raise
+  `fit.max_restarts` and plan again.
 )";
   if (any_extrapolated)
     s += "\nSome answers above are extrapolated beyond the simulated budgets; see `extrapolated`.\n";
@@ -257,12 +264,13 @@ std::vector<std::string> answer_cells(const AnswerRow& r) {
   const std::string crit = r.criterion == Criterion::mean ? std::string("mean") : fmt::format("assurance {}", r.assurance);
   return {std::string(name(r.measure)), fmt::format("{}", r.target), crit, std::string(name(r.strategy)),
           std::to_string(r.logged), human_needed(r), human_interval(r), std::string(name(r.status)),
-          human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"), std::to_string(r.pairs)};
+          human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"), std::to_string(r.pairs),
+          human_share(r.unconfirmed)};
 }
 
 const std::vector<std::string> answer_header{"measure", "target", "criterion", "strategy", "logged", "needed",
-                                             "interval", "status", "saved", "per logged", "pairs"};
-const std::vector<bool> answer_right{false, true, false, false, true, true, false, false, true, true, true};
+                                             "interval", "status", "saved", "per logged", "pairs", "unconfirmed"};
+const std::vector<bool> answer_right{false, true, false, false, true, true, false, false, true, true, true, true};
 
 }  // namespace
 

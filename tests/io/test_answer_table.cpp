@@ -70,8 +70,10 @@ std::vector<AnswerRow> sample_rows() {
   a.high = 1.0 / 3.0 * 1000.0;
   a.status = AnswerStatus::reached;
   a.pairs = 40;
+  a.unconfirmed = 0.0125;
 
   AnswerRow b = a;
+  b.unconfirmed.reset();
   b.strategy = Strategy::regime_aware;
   b.logged = 1000;
   b.needed_pilot = 12345.678901234567;
@@ -121,7 +123,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
   REQUIRE(std::getline(in, line));
   CHECK(line ==
         "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
-        "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion");
+        "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,unconfirmed");
   std::vector<std::vector<std::string>> parsed;
   while (std::getline(in, line)) parsed.push_back(split(line));
   REQUIRE(parsed.size() == rows.size());
@@ -129,7 +131,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
     const auto& c = parsed[i];
     const auto& r = rows[i];
     INFO("row " << i);
-    REQUIRE(c.size() == 15);
+    REQUIRE(c.size() == 16);
     CHECK(std::stoi(c[0]) == r.scenario);
     CHECK(parse_measure(c[1]) == r.measure);
     CHECK(same(parse(c[2]), r.target));
@@ -145,7 +147,10 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
     CHECK(parse_opt(c[12]) == r.exchange_rate);
     CHECK(std::stoi(c[13]) == r.pairs);
     CHECK(parse_criterion(c[14]) == r.criterion);
+    CHECK(parse_opt(c[15]) == r.unconfirmed);
   }
+  CHECK(parsed[0][15] == "0.0125");
+  CHECK(parsed[1][15].empty());  // no share known: empty
   // Spelling of special cells: "inf" for infinity, empty for missing.
   CHECK(parsed[1][8] == "inf");
   CHECK(parsed[2][3].empty());
