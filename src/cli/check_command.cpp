@@ -52,10 +52,18 @@ int check_command(const std::string& study_file) {
   }
   std::fprintf(stderr, "calibrating on this machine (one fit per scenario)...\n");
   const CostEstimate cost = estimate_cost(study);
-  for (const auto& c : cost.scenarios)
+  int unconfirmed = 0;
+  for (const auto& c : cost.scenarios) {
     std::printf("# scenario %d: %d units, %lld fits, calibration %.2g s per 1000 observations fitted, %.2g s of measures per fit: about %.3g core-hours\n",
                 c.scenario, c.units, c.fits, 1000.0 * c.seconds_per_observation, c.measure_seconds_per_fit,
                 c.core_seconds / 3600.0);
+    std::printf("# scenario %d: calibration fit ran %d EM starts; its best optimum was %s\n", c.scenario,
+                c.calibration_starts, c.calibration_confirmed ? "confirmed by a second start" : "NOT confirmed by a second start");
+    unconfirmed += c.calibration_confirmed ? 0 : 1;
+  }
+  std::printf("# calibration fits whose best optimum was not confirmed: %d of %zu (%.0f%%)%s\n", unconfirmed,
+              cost.scenarios.size(), 100.0 * unconfirmed / static_cast<double>(std::max<std::size_t>(1, cost.scenarios.size())),
+              unconfirmed > 0 ? "; consider a larger fit.max_restarts" : "");
   std::printf("# estimated cost: %.3g core-hours (%.0f core-seconds); wall time is about this divided by the cores used\n",
               cost.core_seconds / 3600.0, cost.core_seconds);
   std::printf("# (from one timed calibration fit per scenario on this machine; see DEVELOPERS.md for its accuracy)\n");

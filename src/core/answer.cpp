@@ -440,6 +440,14 @@ std::vector<AnswerRow> compute_answers(const std::vector<RunRecord>& rows, int s
         row.bracket_high = res.point.bracket_high;
         row.sampling_low = res.sampling_low;
         row.sampling_high = res.sampling_high;
+        if (const auto g = groups.find({s, logged}); g != groups.end()) {
+          // Of the rows with a fit (a cell with no data has none: starts 0), those whose best
+          // optimum no second start reached.
+          std::size_t fitted = 0, open = 0;
+          for (const RunRecord* r : g->second)
+            if (r->starts > 0) ++fitted, open += r->confirmed ? 0 : 1;
+          if (fitted > 0) row.unconfirmed = static_cast<double>(open) / static_cast<double>(fitted);
+        }
         out.push_back(row);
       }
     }

@@ -72,6 +72,10 @@
 // (common random numbers; cells with the same pairs are resampled with the same pairs), so
 // identical rows give identical answers and answers differ only through the data and the target.
 //
+// Unconfirmed: the share of the cell's run records (this strategy and logged budget, every pilot
+// budget of the grid, whatever the measure's value) with `confirmed` false: fits whose best
+// objective no second EM start reached (fit.hpp), so a better optimum may exist.
+//
 // Savings: saved_vs_pilot_only = needed(pilot-only) - needed(strategy, N_L), for pooled and
 // regime-aware only. Pilot-only ignores logged data: its answer at the same logged budget is used
 // when pilot-only records exist there, otherwise its answer at the smallest logged budget that has
@@ -153,6 +157,8 @@ struct AnswerRow {
   std::optional<double> saved_vs_pilot_only;  // pooled and regime-aware only
   std::optional<double> exchange_rate;        // saved / logged; empty when logged == 0
   int pairs = 0;                              // (draw, replicate) pairs with a value
+  std::optional<double> unconfirmed;          // share of the cell's fits (records on the grid) whose
+                                              // best optimum no second EM start reached (fit.hpp)
   double interval = 0.90;                     // coverage of [low, high] (not a CSV column)
   int draws = 0;  // environment draws among the pairs (CSV column `draws`)
   // Not CSV columns:

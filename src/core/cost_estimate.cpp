@@ -91,8 +91,12 @@ CostBound bound_fit_cost(const ScenarioSettings& s, double episodes) {
   const ScenarioSizes z = sizes_of(s);
   const double obs = episodes * (z.H + 1.0);
   const double step = obs * (em_per_observation + em_per_observation_z2 * z.Z * z.Z) + z.A * z.O * z.Z * z.Z * op_seconds;
+  // Typical: `restarts` starts of typical length. At most: every start the fit may run (fit.hpp:
+  // up to 3 warm starts plus a random one, or up to fit.max_restarts while the best optimum is not
+  // confirmed), each to fit.max_iterations.
   const double cap = s.fit.max_iterations, restarts = std::max(1, s.fit.restarts);
-  return {restarts * std::min(cap, typical_iterations) * step, restarts * cap * step};
+  const double most_starts = std::max({restarts, 4.0, static_cast<double>(s.fit.max_restarts)});
+  return {restarts * std::min(cap, typical_iterations) * step, most_starts * cap * step};
 }
 
 CostBound bound_cost(const Study& study, const std::vector<UnitId>& units) {
@@ -148,6 +152,8 @@ CostEstimate estimate_cost(const Study& study, int calibration_episodes) {
                             env.model, rng);
     ScenarioCost c;
     c.scenario = sc.index;
+    c.calibration_starts = f.starts;
+    c.calibration_confirmed = f.confirmed;
     c.seconds_per_observation = seconds_since(t_fit) / (static_cast<double>(n_pilot + n_logged) * (s.environment.horizon + 1));
     const auto t_measure = std::chrono::steady_clock::now();
     for (Measure m : s.measures) {

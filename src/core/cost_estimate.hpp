@@ -40,6 +40,8 @@ struct ScenarioCost {
   double measure_seconds_per_fit = 0.0;    // calibration: model_kl and return_gap per fit
   double seconds_per_draw = 0.0;           // calibration: return_gap reference (true plan, V*) per draw
   double calibration_seconds = 0.0;        // time the calibration itself took
+  int calibration_starts = 0;              // EM starts the calibration fit ran (fit.hpp)
+  bool calibration_confirmed = false;      // a second start reached its best optimum
   double core_seconds = 0.0;               // estimated total for the scenario
 };
 

@@ -1,40 +1,30 @@
 #include "core/fit.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 
+#include "core/collapse.hpp"
 #include "core/forward_backward.hpp"
-#include "core/sampling.hpp"
 
 namespace dobudget {
 namespace {
+
+// Stopping: no probability moved by more than this over the last SQUAREM cycle (with the
+// objective's change per observation at most FitSettings::tolerance).
+constexpr double kParameterTolerance = 1e-3;
+// Latent values closer than this (collapse.hpp) are split, at most kMaxEscapes times per start.
+constexpr double kCollapseDistance = 0.02;
+constexpr int kMaxEscapes = 2;
+// Two starts reach the same optimum when their objectives differ by at most this per observation
+// (a tenth of the 1 nat per 1000 observations counted as a failed fit in DEVELOPERS.md).
+constexpr double kConfirmTolerance = 1e-4;
 
 int max_horizon(const std::vector<DataView>& data) {
   int h = 1;
   for (const auto& v : data)
     if (v.data != nullptr) h = std::max(h, v.data->horizon);
   return h;
-}
-
-Vector observation_frequencies(const std::vector<DataView>& data, int O) {
-  Vector f = Vector::Constant(O, 1e-3);
-  for (const auto& v : data)
-    for (int i = 0; i < v.count; ++i)
-      for (int t = 0; t <= v.data->horizon; ++t) f(v.data->obs(i)[t]) += 1.0;
-  return f / f.sum();
-}
-
-void initialise(Engine& rng, const Vector& freq, Pomdp& m, Matrix& decision) {
-  const int Z = m.states;
-  sample_dirichlet(rng, 1.0, Z, m.initial.data());
-  for (auto& T : m.transitions)
-    for (int z = 0; z < Z; ++z) sample_dirichlet(rng, 1.0, Z, T.row(z).data());
-  Vector row(m.observations);
-  for (int z = 0; z < Z; ++z) {
-    sample_dirichlet(rng, 1.0, m.observations, row.data());
-    m.emissions.row(z) = 0.5 * freq.transpose() + 0.5 * row.transpose();
-  }
-  for (int z = 0; z < decision.rows(); ++z) sample_dirichlet(rng, 1.0, m.actions, decision.row(z).data());
 }
 
 Pomdp empty_latent(const Pomdp& shape, int Z) {
@@ -124,8 +114,9 @@ void unpack(const std::vector<double>& x, Params& p) {
 // taken: the objective never decreases. Plain EM stalls along directions that only the pilot
 // episodes inform, and a relative stopping rule then stops it early (tests/core/test_confounding);
 // the extrapolation moves along exactly those directions.
-// Iterations count E-steps. Convergence: one cycle improves the objective by at most
-// tolerance * |objective|.
+// Iterations count E-steps. Convergence (a rule that does not loosen as the data grow): one cycle
+// improves the objective by at most tolerance per observation of the data, and moves no
+// probability by more than kParameterTolerance.
 struct Run {
   Params p;
   double ll = 0.0, obj = -std::numeric_limits<double>::infinity();
@@ -135,26 +126,30 @@ struct Run {
 
 class Accelerated {
  public:
-  Accelerated(ForwardBackward& fb, const std::vector<DataView>& data, const FitSettings& s, const StopToken& stop)
-      : fb_(fb), data_(data), s_(s), stop_(stop) {}
+  Accelerated(ForwardBackward& fb, const std::vector<DataView>& data, const FitSettings& s, double observations,
+              const StopToken& stop)
+      : fb_(fb), data_(data), s_(s), objective_tolerance_(s.tolerance * observations), stop_(stop) {}
 
-  void run(Run& run) {
+  // Runs EM from run.p until convergence or until run.iterations reaches `cap`.
+  void run(Run& run, int cap) {
     Params& p0 = run.p;
+    run.converged = false;
+    run.obj = -std::numeric_limits<double>::infinity();
     evaluate(p0, c0_, run);
-    while (!run.converged && run.iterations < s_.max_iterations) {
+    while (!run.converged && run.iterations < cap) {
       Params p1 = p0;
       step(c0_, p1);
       Run r1;
       evaluate(p1, c1_, r1);
       ++run.iterations;
-      if (run.iterations >= s_.max_iterations) {  // no room for a whole cycle: keep the plain EM step
-        accept(run, p1, c1_, r1);
+      pack(p0, x0_);
+      pack(p1, x1_);
+      if (run.iterations >= cap) {  // no room for a whole cycle: keep the plain EM step
+        accept(run, p1, c1_, r1, x1_);
         break;
       }
       Params p2 = p1;
       step(c1_, p2);
-      pack(p0, x0_);
-      pack(p1, x1_);
       pack(p2, x2_);
       double rr = 0.0, vv = 0.0;
       const std::size_t n = x0_.size();
@@ -186,22 +181,26 @@ class Accelerated {
       evaluate(next, cn_, rn);
       ++run.iterations;
       if (alpha < -1.0 && !(rn.obj >= r1.obj)) {  // extrapolation did worse than one EM step
-        if (run.iterations >= s_.max_iterations) {
-          accept(run, p1, c1_, r1);
+        if (run.iterations >= cap) {
+          accept(run, p1, c1_, r1, x1_);
           break;
         }
         next = std::move(p2);  // theta2, whose objective is at least theta1's
         evaluate(next, cn_, rn);
         ++run.iterations;
       }
-      accept(run, next, cn_, rn);
+      pack(next, xn_);
+      accept(run, next, cn_, rn, xn_);
     }
   }
 
  private:
-  // Makes `p` (evaluated into `c`, `r`) the current point of `run`.
-  void accept(Run& run, Params& p, ExpectedCounts& c, const Run& r) {
-    run.converged = r.obj - run.obj <= s_.tolerance * std::abs(run.obj);
+  // Makes `p` (evaluated into `c`, `r`; packed as `x`) the current point of `run`, whose packed
+  // parameters are x0_.
+  void accept(Run& run, Params& p, ExpectedCounts& c, const Run& r, const std::vector<double>& x) {
+    double moved = 0.0;
+    for (std::size_t k = 0; k < x.size(); ++k) moved = std::max(moved, std::abs(x[k] - x0_[k]));
+    run.converged = r.obj - run.obj <= objective_tolerance_ && moved <= kParameterTolerance;
     run.p = std::move(p);
     std::swap(c0_, c);
     run.ll = r.ll;
@@ -220,6 +219,7 @@ class Accelerated {
   ForwardBackward& fb_;
   const std::vector<DataView>& data_;
   const FitSettings& s_;
+  const double objective_tolerance_;
   const StopToken& stop_;
   ExpectedCounts c0_, c1_, cn_;
   std::vector<double> x0_, x1_, x2_, r_, v_, xn_;
@@ -228,30 +228,64 @@ class Accelerated {
 }  // namespace
 
 FitResult fit(const std::vector<DataView>& data, bool decision_rule, const FitSettings& s, const Pomdp& shape,
-              Engine& rng, const StopToken& stop) {
+              Engine& rng, const std::vector<WarmStart>& warm, const StopToken& stop) {
   const int Z = s.latent_states;
+  double observations = 0.0;
+  for (const auto& v : data)
+    if (v.data != nullptr) observations += static_cast<double>(v.count) * (v.data->horizon + 1);
   const Vector freq = observation_frequencies(data, shape.observations);
+  const Vector action_freq = logged_action_frequencies(data, shape.actions);
   ForwardBackward fb(Z, shape.actions, shape.observations, max_horizon(data));
-  Accelerated em(fb, data, s, stop);
+  Accelerated em(fb, data, s, observations, stop);
+  const double confirm = kConfirmTolerance * std::max(1.0, observations);
+  const int n_warm = static_cast<int>(warm.size());
+  const int least = std::max(std::max(1, s.restarts), n_warm + 1);  // at least one random start
+  const int most = std::max(least, s.max_restarts);
   FitResult best;
   best.objective = -std::numeric_limits<double>::infinity();
-  for (int r = 0; r < std::max(1, s.restarts); ++r) {
+  auto confirmed = [&] {
+    int reached = 0;
+    for (double o : best.restart_objectives) reached += o >= best.objective - confirm;
+    return reached >= 2;
+  };
+  for (int k = 0; k < most && !(k >= least && confirmed()); ++k) {
     Run run;
     run.p.m = empty_latent(shape, Z);
     run.p.qA = decision_rule ? Matrix(Z, shape.actions) : Matrix();
-    initialise(rng, freq, run.p.m, run.p.qA);
-    em.run(run);
+    if (k < n_warm) warm_start(warm[static_cast<std::size_t>(k)], action_freq, run.p.m, run.p.qA);
+    else random_start(rng, data, freq, run.p.m, run.p.qA);
+    em.run(run, s.max_iterations);
+    // Escape collapsed latent values: split the closest pair and continue; keep the split's end
+    // only if it is better (collapse.hpp).
+    for (int e = 0; e < kMaxEscapes; ++e) {
+      const auto pair = collapsed_pair(run.p.m, run.p.qA, kCollapseDistance);
+      if (!pair) break;
+      Run trial;
+      trial.p = run.p;
+      trial.iterations = run.iterations;
+      split_latent_pair(rng, pair->first, pair->second, trial.p.m, trial.p.qA);
+      em.run(trial, run.iterations + s.max_iterations);
+      ++best.escapes;
+      if (!(trial.obj > run.obj)) {
+        run.iterations = trial.iterations;
+        break;
+      }
+      run = std::move(trial);
+    }
     best.restart_objectives.push_back(run.obj);
+    best.total_iterations += run.iterations;
     if (run.obj > best.objective) {
       best.objective = run.obj;
       best.loglik = run.ll;
       best.iterations = run.iterations;
       best.converged = run.converged;
-      best.best_restart = r;
+      best.best_restart = k;
       best.model = std::move(run.p.m);
       best.decision = std::move(run.p.qA);
     }
   }
+  best.starts = static_cast<int>(best.restart_objectives.size());
+  best.confirmed = confirmed();
   return best;
 }
 

@@ -22,6 +22,8 @@ struct RunRecord {
   bool converged = false;
   std::string note;                  // why a measure is empty, e.g. "no room for planning"; never contains a comma
   double fit_seconds = 0.0;          // wall clock: goes to timings.csv only
+  int starts = 0;                    // EM starts the fit ran (warm and random; fit.hpp)
+  bool confirmed = false;            // its best objective was reached by a second start
 };
 
 }  // namespace dobudget

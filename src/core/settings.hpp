@@ -38,7 +38,8 @@ struct LoggingSettings {
 
 struct FitSettings {
   int latent_states = 4;
-  int restarts = 3;          // random starts, each run to convergence (see fit.hpp)
+  int restarts = 3;          // random starts always run, each to convergence (see fit.hpp)
+  int max_restarts = 10;     // cap on random starts while the best optimum is not confirmed
   int max_iterations = 200;  // cap on E-steps of one start
   double tolerance = 1e-6;
   double prior = 0.1;

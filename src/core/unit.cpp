@@ -96,45 +96,59 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
     std::string note;
     double seconds = 0.0;
   };
+  // Every fit the unit needs, computed in the order of FitKey (pilot-only, pooled, regime-aware;
+  // logged and pilot budgets ascending), whatever the order the settings list: so each fit can
+  // start from the fits of the same data computed before it (fit.hpp, "Starts"): the pilot-only
+  // fit of the same pilot budget, the pooled fit of the same budgets (for regime-aware), and the
+  // same strategy's fit at the next smaller pilot budget (nested data: a prefix of this fit's).
   std::map<FitKey, Cell> cells;
+  for (Strategy st : s.strategies)
+    for (int L : s.logged_budgets)
+      for (int n : s.pilot_budgets) cells.emplace(fit_key(st, L, n), Cell{});
+  const FitKey* previous = nullptr;
+  for (auto& [k, c] : cells) {
+    if (k.strategy == Strategy::pilot_only && k.pilot == 0) {
+      // No data at all (pilot budget 0, no logged episodes used): nothing is fitted, and the cell
+      // fails every target (+infinity), or is empty where the draw leaves no room for planning,
+      // like every other fit of the draw. It offers no warm start (its fit has no starts).
+      c.note = kNoData;
+      if (want_kl) c.kl = std::numeric_limits<double>::infinity();
+      if (want_gap && ctx.return_gap->room) c.gap = std::numeric_limits<double>::infinity();
+      if (want_gap && !ctx.return_gap->room) c.note = ctx.return_gap->note;
+      continue;
+    }
+    std::vector<DataView> views{{&pilot, k.pilot, Regime::pilot}};
+    if (k.strategy != Strategy::pilot_only)
+      views.push_back({&logged, k.logged, k.strategy == Strategy::regime_aware ? Regime::logged : Regime::pilot});
+    std::vector<WarmStart> warm;
+    auto offer = [&](const FitKey& from) {
+      if (const auto it = cells.find(from); it != cells.end() && it->second.fit.starts > 0)
+        warm.push_back({&it->second.fit.model, &it->second.fit.decision});
+    };
+    if (k.strategy != Strategy::pilot_only) offer({Strategy::pilot_only, 0, k.pilot});
+    if (k.strategy == Strategy::regime_aware) offer({Strategy::pooled, k.logged, k.pilot});
+    if (previous != nullptr && previous->strategy == k.strategy && previous->logged == k.logged) offer(*previous);
+    previous = &k;
+    Engine fit_rng = make_engine(
+        key, Purpose::fit,
+        combine(combine(name_key(name(k.strategy)), static_cast<std::uint64_t>(k.logged)), static_cast<std::uint64_t>(k.pilot)));
+    const auto t0 = std::chrono::steady_clock::now();
+    c.fit = fit(views, k.strategy == Strategy::regime_aware, s.fit, env.model, fit_rng, warm, stop);
+    c.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+    if (want_kl) c.kl = model_kl(eval, c.fit.model, stop);
+    if (want_gap) {
+      const ReturnGapResult g =
+          return_gap(env.model, c.fit.model, *ctx.return_gap, s.planner, key, &star_returns, stop);
+      c.gap = g.gap;
+      c.note = g.note;
+    }
+  }
+
   std::vector<RunRecord> rows;
   for (Strategy st : s.strategies) {
     for (int L : s.logged_budgets) {
       for (int n : s.pilot_budgets) {
-        const FitKey k = fit_key(st, L, n);
-        auto it = cells.find(k);
-        if (it == cells.end() && k.strategy == Strategy::pilot_only && k.pilot == 0) {
-          // No data at all (pilot budget 0, no logged episodes used): nothing is fitted, and the
-          // cell fails every target (+infinity), or is empty where the draw leaves no room for
-          // planning, like every other fit of the draw.
-          Cell c;
-          c.note = kNoData;
-          if (want_kl) c.kl = std::numeric_limits<double>::infinity();
-          if (want_gap && ctx.return_gap->room) c.gap = std::numeric_limits<double>::infinity();
-          if (want_gap && !ctx.return_gap->room) c.note = ctx.return_gap->note;
-          it = cells.emplace(k, std::move(c)).first;
-        }
-        if (it == cells.end()) {
-          std::vector<DataView> views{{&pilot, n, Regime::pilot}};
-          if (k.strategy != Strategy::pilot_only)
-            views.push_back({&logged, L, k.strategy == Strategy::regime_aware ? Regime::logged : Regime::pilot});
-          Engine fit_rng = make_engine(
-              key, Purpose::fit,
-              combine(combine(name_key(name(k.strategy)), static_cast<std::uint64_t>(k.logged)), static_cast<std::uint64_t>(k.pilot)));
-          Cell c;
-          const auto t0 = std::chrono::steady_clock::now();
-          c.fit = fit(views, k.strategy == Strategy::regime_aware, s.fit, env.model, fit_rng, stop);
-          c.seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-          if (want_kl) c.kl = model_kl(eval, c.fit.model, stop);
-          if (want_gap) {
-            const ReturnGapResult g =
-                return_gap(env.model, c.fit.model, *ctx.return_gap, s.planner, key, &star_returns, stop);
-            c.gap = g.gap;
-            c.note = g.note;
-          }
-          it = cells.emplace(k, std::move(c)).first;
-        }
-        const Cell& c = it->second;
+        const Cell& c = cells.at(fit_key(st, L, n));
         RunRecord r;
         r.scenario = u.scenario;
         r.environment = u.draw;
@@ -149,6 +163,8 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
         r.converged = c.fit.converged;
         r.note = c.note;
         r.fit_seconds = c.seconds;
+        r.starts = c.fit.starts;
+        r.confirmed = c.fit.confirmed;
         rows.push_back(r);
       }
     }

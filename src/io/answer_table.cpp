@@ -100,6 +100,8 @@ std::string few_draws_warning(int draws) {
 
 std::string percent(double x) { return fmt::format("{:g}%", std::round(x * 1000.0) / 10.0); }
 
+std::string human_share(const std::optional<double>& x) { return x ? percent(*x) : std::string("-"); }
+
 std::string criterion_sentence(const AnswerRow& r) {
   if (r.criterion == Criterion::mean)
     return fmt::format("Criterion `mean`: the mean {} across (environment draw, replicate) pairs is at most {}.",
@@ -158,14 +160,14 @@ std::string_view readable_answers_note() {
 
 std::string_view answer_csv_header() {
   return "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
-         "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws";
+         "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws,unconfirmed";
 }
 
 std::string answer_csv_line(const AnswerRow& r) {
-  return fmt::format("{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}", r.scenario, name(r.measure), cell(r.target),
+  return fmt::format("{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}", r.scenario, name(r.measure), cell(r.target),
                      cell(r.assurance), name(r.strategy), r.logged, cell(r.needed_pilot), cell(r.low), cell(r.high),
                      name(r.status), cell(r.floor), cell(r.saved_vs_pilot_only), cell(r.exchange_rate), r.pairs,
-                     name(r.criterion), r.draws);
+                     name(r.criterion), r.draws, cell(r.unconfirmed));
 }
 
 void write_answer_csv(const std::filesystem::path& path, const std::vector<AnswerRow>& rows) {
@@ -219,17 +221,17 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
     if (const int fewest = fewest_draws(group); fewest > 0) s += fmt::format("**Few environment draws**: {}.\n\n", few_draws_warning(fewest));
     s += fmt::format(
         "| strategy | logged | needed pilot | {} interval | status | floor | saved vs pilot-only | "
-        "saved per logged episode | pairs | draws |\n",
+        "saved per logged episode | pairs | draws | unconfirmed fits |\n",
         percent(first->interval));
-    s += "|---|---:|---:|---|---|---:|---:|---:|---:|---:|\n";
+    s += "|---|---:|---:|---|---|---:|---:|---:|---:|---:|---:|\n";
     for (std::size_t i = 0; i < readable.rows.size(); ++i) {
       const AnswerRow& r = readable.rows[i];
       if (group_key(r) != key) continue;
       any_extrapolated = any_extrapolated || r.status == AnswerStatus::extrapolated;
-      s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.strategy), readable.logged[i],
+      s += fmt::format("| {} | {} | {} | {} | {} | {} | {} | {} | {} | {} | {} |\n", name(r.strategy), readable.logged[i],
                        human_needed(r), human_interval(r), name(r.status), human_value(r.floor),
                        human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"),
-                       r.pairs, r.draws);
+                       r.pairs, r.draws, human_share(r.unconfirmed));
     }
   }
 
@@ -289,6 +291,10 @@ std::string format_answer_md(const std::string& study_name, const std::vector<st
 * **draws**: the environment draws (worlds) the pairs come from. Most of the spread can lie between
   worlds, which only more draws reveal: with fewer than 10 draws of the synthetic family, the
   interval understates it (a given model is one world: its interval covers replicates only).
+* **unconfirmed fits**: the share of this row's model fits (every pair and pilot budget) whose best
+  optimum was reached by only one EM start, even after the most starts allowed (`fit.max_restarts`):
+  a better fit may exist, and the needed budget may then be too high. Above a few percent, raise
+  `fit.max_restarts` and plan again.
 )";
   if (any_extrapolated)
     s += "\nSome answers above are extrapolated beyond the simulated budgets; see `extrapolated`.\n";
@@ -349,12 +355,13 @@ std::vector<std::string> answer_cells(const AnswerRow& r, const std::string& log
   return {std::string(name(r.measure)), fmt::format("{}", r.target), crit, std::string(name(r.strategy)),
           logged, human_needed(r), human_interval(r), std::string(name(r.status)),
           human_signed_episodes(r.saved_vs_pilot_only), human_value(r.exchange_rate, "{:.3g}"), std::to_string(r.pairs),
-          std::to_string(r.draws)};
+          std::to_string(r.draws), human_share(r.unconfirmed)};
 }
 
-const std::vector<std::string> answer_header{"measure", "target", "criterion", "strategy", "logged", "needed",
-                                             "interval", "status", "saved", "per logged", "pairs", "draws"};
-const std::vector<bool> answer_right{false, true, false, false, true, true, false, false, true, true, true, true};
+const std::vector<std::string> answer_header{"measure", "target",   "criterion", "strategy", "logged",
+                                             "needed",  "interval", "status",    "saved",    "per logged",
+                                             "pairs",   "draws",    "unconfirmed"};
+const std::vector<bool> answer_right{false, true, false, false, true, true, false, false, true, true, true, true, true};
 
 }  // namespace
 

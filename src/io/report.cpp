@@ -339,6 +339,7 @@ std::vector<std::pair<std::string, std::string>> settings_rows(const ScenarioSet
   r.emplace_back("measures", join_map(s.measures, ", ", [](Measure x) { return std::string(name(x)); }));
   r.emplace_back("fit.latent_states", std::to_string(s.fit.latent_states));
   r.emplace_back("fit.restarts", std::to_string(s.fit.restarts));
+  r.emplace_back("fit.max_restarts", std::to_string(s.fit.max_restarts));
   r.emplace_back("fit.max_iterations", std::to_string(s.fit.max_iterations));
   r.emplace_back("fit.tolerance", text_number(s.fit.tolerance));
   r.emplace_back("fit.prior", text_number(s.fit.prior));
@@ -686,6 +687,15 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
 
   md += "\n## Answer\n";
   md += answer_section(format_answer_md(study.name, labels, answers));
+  {
+    const auto open = std::count_if(rows.begin(), rows.end(), [](const RunRecord& r) { return !r.confirmed; });
+    md += fmt::format(
+        "\nOf the {} run records, {} ({}) come from a fit whose best optimum no second EM start reached "
+        "(`confirmed` 0 in runs.csv; fit settings `restarts` and `max_restarts`).\n",
+        rows.size(), open,
+        rows.empty() ? std::string("-")
+                     : fmt::format("{:g}%", std::round(1000.0 * static_cast<double>(open) / static_cast<double>(rows.size())) / 10.0));
+  }
 
   md += "\n## Figures\n\n";
   md += "For each scenario and measure: the measure against the pilot budget for each way of using the data, and "

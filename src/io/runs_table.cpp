@@ -18,9 +18,10 @@
 namespace dobudget::io {
 namespace {
 
-constexpr std::array<const char*, 12> runs_columns{"scenario", "environment", "replicate", "strategy",
+constexpr std::array<const char*, 14> runs_columns{"scenario", "environment", "replicate", "strategy",
                                                    "logged",   "pilot",       "model_kl",  "return_gap",
-                                                   "loglik",   "iterations",  "converged", "note"};
+                                                   "loglik",   "iterations",  "converged", "note",
+                                                   "starts",   "confirmed"};
 
 std::vector<std::string> split(const std::string& line) {
   std::vector<std::string> cells;
@@ -99,8 +100,8 @@ std::string keys(const RunRecord& r) {
 }  // namespace
 
 std::string runs_line(const RunRecord& r) {
-  return fmt::format("{},{},{},{},{},{},{}", keys(r), csv_number(r.model_kl), csv_number(r.return_gap),
-                     csv_number(r.loglik), r.iterations, r.converged ? 1 : 0, r.note);
+  return fmt::format("{},{},{},{},{},{},{},{},{}", keys(r), csv_number(r.model_kl), csv_number(r.return_gap),
+                     csv_number(r.loglik), r.iterations, r.converged ? 1 : 0, r.note, r.starts, r.confirmed ? 1 : 0);
 }
 
 RunRecord parse_runs_line(const std::string& line, const std::string& source, int line_number) {
@@ -133,6 +134,10 @@ RunRecord parse_runs_line(const std::string& line, const std::string& source, in
   for (char ch : c[11])
     if (static_cast<unsigned char>(ch) < 0x20 || ch == 0x7f) cells.fail(11, "holds a control character: " + shown(c[11]));
   r.note = c[11];
+  r.starts = cells.count(12);
+  if (c[13] != "0" && c[13] != "1") cells.fail(13, "must be 0 or 1, got " + shown(c[13]));
+  r.confirmed = c[13] == "1";
+  if (r.confirmed && r.starts < 2) cells.fail(13, "is 1, but a best optimum is confirmed only by a second start (starts " + c[12] + ")");
   return r;
 }
 

@@ -1,16 +1,17 @@
 // runs.csv and timings.csv (design.md sec. 7). runs.csv is byte-identical across runs of the same
 // study (whatever the threads, shards or ranks): it holds no wall-clock figure, and numbers are
 // written in the shortest form that reads back to the same double. timings.csv holds the same
-// keys with fit_seconds. The design's columns come first; `note` is appended (why a measure is
-// empty, e.g. "no room for planning").
+// keys with fit_seconds. The design's columns come first; appended after them: `note` (why a
+// measure is empty, e.g. "no room for planning"), `starts` (EM starts the fit ran) and `confirmed`
+// (1 when a second start reached the best objective; fit.hpp).
 //
 // Reading treats the text as hostile: every cell is checked for its type and range, and a bad cell
 // is an InputError naming the file, the line and the column:
 //   runs.csv:14: model_kl: must be at least 0, got -0.3
-// Ranges: scenario, environment, replicate, logged, pilot and iterations are integers >= 0;
+// Ranges: scenario, environment, replicate, logged, pilot, iterations and starts are integers >= 0;
 // strategy is a known strategy; model_kl is empty or a number >= 0 (or inf); return_gap is empty or
 // finite, or inf with the note of a cell with no data (unit.hpp, kNoData);
-// loglik is a number (not nan); converged is 0 or 1; note holds no control character.
+// loglik is a number (not nan); converged and confirmed are 0 or 1; note holds no control character.
 // Whether the rows are the ones a study expects is checked by finished_run.hpp.
 #pragma once
 #include <cstdint>
@@ -23,7 +24,8 @@
 namespace dobudget::io {
 
 inline constexpr const char* runs_header =
-    "scenario,environment,replicate,strategy,logged,pilot,model_kl,return_gap,loglik,iterations,converged,note";
+    "scenario,environment,replicate,strategy,logged,pilot,model_kl,return_gap,loglik,iterations,converged,note,starts,"
+    "confirmed";
 inline constexpr const char* timings_header = "scenario,environment,replicate,strategy,logged,pilot,fit_seconds";
 
 // A runs.csv (or timings.csv) row is at most a few hundred bytes (six keys, three numbers of at most

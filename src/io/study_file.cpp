@@ -37,7 +37,8 @@ const std::vector<std::string> family_keys{"states", "actions", "observations", 
 const std::vector<std::string> logging_keys{"privilege", "temperature", "q_discount"};
 const std::vector<std::string> pilot_keys{"policy"};
 const std::vector<std::string> budget_keys{"logged", "pilot"};
-const std::vector<std::string> fit_keys{"latent_states", "restarts", "max_iterations", "tolerance", "prior"};
+const std::vector<std::string> fit_keys{"latent_states", "restarts", "max_restarts", "max_iterations", "tolerance",
+                                        "prior"};
 const std::vector<std::string> evaluation_keys{"trajectories", "policy"};
 const std::vector<std::string> planner_keys{"belief_points", "seed", "exact_histories", "rollouts"};
 
@@ -72,6 +73,7 @@ const std::vector<std::pair<std::string, Kind>> sweepable{
     {"replicates", Kind::whole},
     {"fit.latent_states", Kind::whole},
     {"fit.restarts", Kind::whole},
+    {"fit.max_restarts", Kind::whole},
     {"fit.max_iterations", Kind::whole},
     {"fit.tolerance", Kind::number},
     {"fit.prior", Kind::number},
@@ -363,6 +365,7 @@ class StudyParser {
     const int states = s.environment.given ? s.environment.given->model.states : s.environment.family.states;
     s.fit.latent_states = whole(fit, "latent_states", states, 1, max_model_size);
     s.fit.restarts = whole(fit, "restarts", s.fit.restarts, 1, max_restarts);
+    s.fit.max_restarts = whole(fit, "max_restarts", s.fit.max_restarts, 1, max_restarts);
     s.fit.max_iterations = whole(fit, "max_iterations", s.fit.max_iterations, 1, max_iterations_cap);
     s.fit.tolerance = number(fit, "tolerance", s.fit.tolerance, positive);
     s.fit.prior = number(fit, "prior", s.fit.prior, prior_range);
@@ -667,6 +670,7 @@ std::string resolved_yaml(const Study& study) {
   out << YAML::Value << YAML::BeginMap;
   if (!latent_follows) put_int("fit.latent_states", "latent_states", s.fit.latent_states);
   put_int("fit.restarts", "restarts", s.fit.restarts);
+  put_int("fit.max_restarts", "max_restarts", s.fit.max_restarts);
   put_int("fit.max_iterations", "max_iterations", s.fit.max_iterations);
   put_number("fit.tolerance", "tolerance", s.fit.tolerance);
   put_number("fit.prior", "prior", s.fit.prior);

@@ -27,9 +27,11 @@
 //   replicates: 10               # >= 1
 //   strategies: [pilot-only, pooled, regime-aware]  # non-empty, no repeats
 //   measures: [model_kl]         # model_kl and/or return_gap; non-empty, no repeats
-//   fit: { latent_states: S, restarts: 3, max_iterations: 200, tolerance: 1.0e-6, prior: 0.1 }
-//                                # latent_states defaults to the environment's number of states;
-//                                # sizes >= 1, tolerance > 0, prior >= 0
+//   fit: { latent_states: S, restarts: 3, max_restarts: 10, max_iterations: 200, tolerance: 1.0e-6,
+//          prior: 0.1 }          # latent_states defaults to the environment's number of states;
+//                                # sizes >= 1, tolerance > 0 (per observation), prior >= 0.
+//                                # restarts: starts always run; max_restarts: starts at most while
+//                                # the best optimum is not confirmed (below restarts: restarts)
 //   evaluation: { trajectories: 1000, policy: uniform }  # >= 1; only uniform for now
 //   planner: { belief_points: 500, seed: 0, exact_histories: 20000, rollouts: 2000 }
 //                                # belief_points, rollouts >= 1; exact_histories >= 0

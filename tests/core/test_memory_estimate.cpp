@@ -2,6 +2,8 @@
 // scaling with the keys that drive it.
 #include <catch2/catch.hpp>
 
+#include <algorithm>
+
 #include <string>
 
 #include "core/cost_estimate.hpp"
@@ -126,6 +128,11 @@ TEST_CASE("cost bound: counts in double, never negative, monotone in the budgets
   const std::size_t n = half.size();
   half.resize(n / 2);
   CHECK(bound_cost(small, half).core_seconds == Approx(few.core_seconds * static_cast<double>(n / 2) / n));
-  // The bound uses every E-step of the cap; the estimate min(cap, 100): 200 -> 2x.
-  CHECK(few.max_core_seconds == Approx(2.0 * few.core_seconds).epsilon(0.01));
+  // The bound runs every start the fit may run (up to fit.max_restarts) to the cap; the estimate
+  // runs fit.restarts starts of min(cap, 100) E-steps: (10 / 3) x (200 / 100) with the defaults.
+  const FitSettings& f = small.scenarios[0].settings.fit;
+  const double ratio = std::max({static_cast<double>(f.restarts), 4.0, static_cast<double>(f.max_restarts)}) /
+                       f.restarts * f.max_iterations / std::min(f.max_iterations, 100);
+  CHECK(ratio == Approx(20.0 / 3.0));
+  CHECK(few.max_core_seconds == Approx(ratio * few.core_seconds).epsilon(0.01));
 }

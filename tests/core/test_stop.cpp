@@ -76,7 +76,7 @@ TEST_CASE("stop: a fit with a stop already requested reports cancelled at its fi
   const Dataset pilot = simulate(env, Regime::pilot, 500, data_rng);
   CountingStop stop;  // true at the first poll
   Engine rng(9);
-  CHECK_THROWS_AS(fit({{&pilot, 500, Regime::pilot}}, false, s.fit, env.model, rng, stop.token()), Cancelled);
+  CHECK_THROWS_AS(fit({{&pilot, 500, Regime::pilot}}, false, s.fit, env.model, rng, {}, stop.token()), Cancelled);
   CHECK(stop.polls == 1);  // it returned at once: one poll, no E-step after it
 }
 
@@ -89,7 +89,7 @@ TEST_CASE("stop: a stop requested part-way ends the fit at the next E-step", "[s
   CountingStop stop;
   stop.after = 7;
   Engine rng(9);
-  CHECK_THROWS_AS(fit({{&pilot, 200, Regime::pilot}}, false, s.fit, env.model, rng, stop.token()), Cancelled);
+  CHECK_THROWS_AS(fit({{&pilot, 200, Regime::pilot}}, false, s.fit, env.model, rng, {}, stop.token()), Cancelled);
   CHECK(stop.polls == 7);  // polled once per E-step; the 7th saw the stop and nothing ran after it
 }
 
@@ -104,7 +104,7 @@ TEST_CASE("stop: polling changes no arithmetic (a token that never stops gives t
   CountingStop never;
   never.after = 1 << 30;
   const FitResult a = fit(views, true, s.fit, env.model, r1);
-  const FitResult b = fit(views, true, s.fit, env.model, r2, never.token());
+  const FitResult b = fit(views, true, s.fit, env.model, r2, {}, never.token());
   CHECK(never.polls > 0);
   CHECK(std::memcmp(&a.objective, &b.objective, sizeof(double)) == 0);
   CHECK(a.iterations == b.iterations);

@@ -3,6 +3,7 @@
 #include <catch2/catch.hpp>
 
 #include <algorithm>
+#include <optional>
 #include <cmath>
 #include <string>
 #include <tuple>
@@ -144,13 +145,18 @@ TEST_CASE("unit: nested data — a smaller budget is a prefix of the larger one"
   }
   // run_unit fits the smaller pilot budget on that prefix: refitting pilot-only on the first 5 of the
   // 20 pilot episodes with the documented streams (unit.cpp: fit stream sub-keyed by strategy name,
-  // logged and pilot budgets) gives the same log-likelihood as the row.
+  // logged and pilot budgets) and the documented warm start (the fit at the next smaller pilot
+  // budget) gives the same log-likelihood as the row.
   const auto rows = run_unit(st, UnitId{0, 0, 1}, ctx);
   Engine prng = make_engine(key, Purpose::pilot);
   const Dataset pilot = simulate(ctx.environment, Regime::pilot, s.pilot_budgets.back(), prng);
+  std::optional<FitResult> smaller;
   for (int n : s.pilot_budgets) {
     Engine frng = make_engine(key, Purpose::fit, combine(combine(name_key("pilot-only"), 0), static_cast<std::uint64_t>(n)));
-    const FitResult f = fit({{&pilot, n, Regime::pilot}}, false, s.fit, ctx.environment.model, frng);
+    std::vector<WarmStart> warm;
+    if (smaller) warm.push_back({&smaller->model, &smaller->decision});
+    const FitResult f = fit({{&pilot, n, Regime::pilot}}, false, s.fit, ctx.environment.model, frng, warm);
+    smaller = f;
     bool found = false;
     for (const auto& r : rows)
       if (r.strategy == Strategy::pilot_only && r.pilot == n && r.logged == 0) {

@@ -72,8 +72,10 @@ std::vector<AnswerRow> sample_rows() {
   a.high = 1.0 / 3.0 * 1000.0;
   a.status = AnswerStatus::reached;
   a.pairs = 40;
+  a.unconfirmed = 0.0125;
 
   AnswerRow b = a;
+  b.unconfirmed.reset();
   b.strategy = Strategy::regime_aware;
   b.logged = 1000;
   b.needed_pilot = 12345.678901234567;
@@ -123,7 +125,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
   REQUIRE(std::getline(in, line));
   CHECK(line ==
         "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
-        "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws");
+        "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws,unconfirmed");
   std::vector<std::vector<std::string>> parsed;
   while (std::getline(in, line)) parsed.push_back(split(line));
   REQUIRE(parsed.size() == rows.size());
@@ -131,7 +133,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
     const auto& c = parsed[i];
     const auto& r = rows[i];
     INFO("row " << i);
-    REQUIRE(c.size() == 16);
+    REQUIRE(c.size() == 17);
     CHECK(std::stoi(c[0]) == r.scenario);
     CHECK(parse_measure(c[1]) == r.measure);
     CHECK(same(parse(c[2]), r.target));
@@ -148,7 +150,10 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
     CHECK(std::stoi(c[13]) == r.pairs);
     CHECK(parse_criterion(c[14]) == r.criterion);
     CHECK(std::stoi(c[15]) == r.draws);
+    CHECK(parse_opt(c[16]) == r.unconfirmed);
   }
+  CHECK(parsed[0][16] == "0.0125");
+  CHECK(parsed[1][16].empty());  // no share known: empty
   // Spelling of special cells: "inf" for infinity, empty for missing.
   CHECK(parsed[1][8] == "inf");
   CHECK(parsed[2][3].empty());

@@ -20,7 +20,7 @@ using dobudget::test::error_of;
 namespace {
 
 const std::string header = std::string(io::runs_header) + "\n";
-const std::string good = "0,1,2,pooled,100,30,0.25,,-12.5,17,1,";
+const std::string good = "0,1,2,pooled,100,30,0.25,,-12.5,17,1,,3,1";
 
 }  // namespace
 
@@ -52,40 +52,43 @@ TEST_CASE("runs.csv line round trip is exact, subnormals and infinities included
   }
   RunRecord empty;
   CHECK_FALSE(io::parse_runs_line(io::runs_line(empty)).model_kl.has_value());
-  CHECK_THROWS(io::parse_runs_line("0,0,0,pooled,0,10,0.1x,,1,2,1,"));
-  CHECK_THROWS(io::parse_runs_line("0,0,0,pooled,0,10,0.1,,1,2,1"));  // 11 cells
+  CHECK_THROWS(io::parse_runs_line("0,0,0,pooled,0,10,0.1x,,1,2,1,,3,1"));
+  CHECK_THROWS(io::parse_runs_line("0,0,0,pooled,0,10,0.1,,1,2,1,,3"));  // 13 cells
 }
 
 TEST_CASE("runs.csv: a cell with no data (pilot budget 0) reads back with infinite measures", "[runs_table][budget0]") {
   // unit.hpp (kNoData): nothing fitted, every measure +inf. return_gap is otherwise finite or empty.
-  const std::string line = "0,1,2,pilot-only,0,0,inf,inf,0,0,0,no data: nothing fitted";
+  const std::string line = "0,1,2,pilot-only,0,0,inf,inf,0,0,0,no data: nothing fitted,0,0";
   const RunRecord r = io::parse_runs_line(line);
   CHECK(std::isinf(*r.model_kl));
   CHECK(std::isinf(*r.return_gap));
   CHECK(r.note == kNoData);
   CHECK(io::runs_line(r) == line);
-  CHECK_THROWS(io::parse_runs_line("0,1,2,pilot-only,0,0,inf,inf,0,0,0,no room for planning"));
-  CHECK_THROWS(io::parse_runs_line("0,1,2,pilot-only,0,0,inf,-inf,0,0,0,no data: nothing fitted"));
+  CHECK_THROWS(io::parse_runs_line("0,1,2,pilot-only,0,0,inf,inf,0,0,0,no room for planning,0,0"));
+  CHECK_THROWS(io::parse_runs_line("0,1,2,pilot-only,0,0,inf,-inf,0,0,0,no data: nothing fitted,0,0"));
 }
 
 TEST_CASE("runs.csv: every bad cell is refused with the file, the line and the column", "[runs_table]") {
   // (line with one bad cell, column named, words of the message)
   const std::vector<std::tuple<std::string, std::string, std::string>> cases{
-      {"-1,1,2,pooled,100,30,0.25,,-12.5,17,1,", "scenario", "at least 0"},
-      {"0,x,2,pooled,100,30,0.25,,-12.5,17,1,", "environment", "integer"},
-      {"0,1,99999999999,pooled,100,30,0.25,,-12.5,17,1,", "replicate", "integer"},
-      {"0,1,2,oracle,100,30,0.25,,-12.5,17,1,", "strategy", "unknown strategy 'oracle'"},
-      {"0,1,2,pooled,1e3,30,0.25,,-12.5,17,1,", "logged", "integer"},
-      {"0,1,2,pooled,100,+30,0.25,,-12.5,17,1,", "pilot", "integer"},
-      {"0,1,2,pooled,100,30,-0.3,,-12.5,17,1,", "model_kl", "must be at least 0, got -0.3"},
-      {"0,1,2,pooled,100,30,nan,,-12.5,17,1,", "model_kl", "must be at least 0"},
-      {"0,1,2,pooled,100,30,0.25,inf,-12.5,17,1,", "return_gap", "finite"},
-      {"0,1,2,pooled,100,30,0.25,0.1.2,-12.5,17,1,", "return_gap", "expected a number"},
-      {"0,1,2,pooled,100,30,0.25,,nan,17,1,", "loglik", "nan"},
-      {"0,1,2,pooled,100,30,0.25,,,17,1,", "loglik", "expected a number"},
-      {"0,1,2,pooled,100,30,0.25,,-12.5,-4,1,", "iterations", "at least 0"},
-      {"0,1,2,pooled,100,30,0.25,,-12.5,17,2,", "converged", "must be 0 or 1"},
-      {"0,1,2,pooled,100,30,0.25,,-12.5,17,1,bad\r", "note", "control character"},
+      {"-1,1,2,pooled,100,30,0.25,,-12.5,17,1,,3,1", "scenario", "at least 0"},
+      {"0,x,2,pooled,100,30,0.25,,-12.5,17,1,,3,1", "environment", "integer"},
+      {"0,1,99999999999,pooled,100,30,0.25,,-12.5,17,1,,3,1", "replicate", "integer"},
+      {"0,1,2,oracle,100,30,0.25,,-12.5,17,1,,3,1", "strategy", "unknown strategy 'oracle'"},
+      {"0,1,2,pooled,1e3,30,0.25,,-12.5,17,1,,3,1", "logged", "integer"},
+      {"0,1,2,pooled,100,+30,0.25,,-12.5,17,1,,3,1", "pilot", "integer"},
+      {"0,1,2,pooled,100,30,-0.3,,-12.5,17,1,,3,1", "model_kl", "must be at least 0, got -0.3"},
+      {"0,1,2,pooled,100,30,nan,,-12.5,17,1,,3,1", "model_kl", "must be at least 0"},
+      {"0,1,2,pooled,100,30,0.25,inf,-12.5,17,1,,3,1", "return_gap", "finite"},
+      {"0,1,2,pooled,100,30,0.25,0.1.2,-12.5,17,1,,3,1", "return_gap", "expected a number"},
+      {"0,1,2,pooled,100,30,0.25,,nan,17,1,,3,1", "loglik", "nan"},
+      {"0,1,2,pooled,100,30,0.25,,,17,1,,3,1", "loglik", "expected a number"},
+      {"0,1,2,pooled,100,30,0.25,,-12.5,-4,1,,3,1", "iterations", "at least 0"},
+      {"0,1,2,pooled,100,30,0.25,,-12.5,17,2,,3,1", "converged", "must be 0 or 1"},
+      {"0,1,2,pooled,100,30,0.25,,-12.5,17,1,,-1,0", "starts", "at least 0"},
+      {"0,1,2,pooled,100,30,0.25,,-12.5,17,1,,3,2", "confirmed", "must be 0 or 1"},
+      {"0,1,2,pooled,100,30,0.25,,-12.5,17,1,,1,1", "confirmed", "second start"},
+      {"0,1,2,pooled,100,30,0.25,,-12.5,17,1,bad\r,3,1", "note", "control character"},
   };
   for (const auto& [line, column, words] : cases) {
     INFO(line);
@@ -98,7 +101,7 @@ TEST_CASE("runs.csv: every bad cell is refused with the file, the line and the c
   }
   const auto cells = error_of([] { io::parse_runs(header + "0,1,2,pooled,100,30,0.25\n", "runs.csv"); });
   CHECK(cells.line == 2);
-  CHECK_THAT(cells.message, Catch::Contains("expected 12 cells"));
+  CHECK_THAT(cells.message, Catch::Contains("expected 14 cells"));
   CHECK(error_of([] { io::parse_runs(header + good + "\n\n" + good + "\n", "runs.csv"); }).line == 3);  // a gap
   CHECK(error_of([] { io::parse_runs("scenario,draw\n" + good + "\n", "runs.csv"); }).line == 1);
   CHECK_THAT(error_of([] { io::parse_runs("", "runs.csv"); }).message, Catch::Contains("is empty"));
@@ -146,7 +149,7 @@ TEST_CASE("runs.csv: damaged text only ever gives an InputError", "[runs_table]"
 TEST_CASE("timings.csv: fit_seconds read beside runs.csv, and a timings.csv that disagrees is refused",
           "[runs_table]") {
   test::TempDir d("dobudget_test_runs_table");
-  const std::string row2 = "0,1,3,pilot-only,0,5,0.5,,-3,4,1,";
+  const std::string row2 = "0,1,3,pilot-only,0,5,0.5,,-3,4,1,,3,0";
   d.write("runs.csv", header + good + "\n" + row2 + "\n");
   const std::string th = std::string(io::timings_header) + "\n";
   d.write("timings.csv", th + "0,1,2,pooled,100,30,0.125000\n0,1,3,pilot-only,0,5,2.5\n");
