@@ -39,7 +39,10 @@ struct InputError : std::runtime_error {
     if (line > 0) s += ":" + std::to_string(line);
     s += ": ";
     if (!key.empty()) s += key + ": ";
-    return s + message;
+    s += message;
+    // A NUL byte (quoted from a hostile file) would cut what() short: shown as \0 instead.
+    for (std::size_t i = 0; (i = s.find('\0', i)) != std::string::npos; i += 2) s.replace(i, 1, "\\0");
+    return s;
   }
 };
 

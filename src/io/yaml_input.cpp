@@ -228,17 +228,34 @@ std::string read_file_text(const std::filesystem::path& file, std::string_view w
 namespace {
 
 // Where each document of a YAML stream starts, from yaml-cpp's event parser (no nodes are built).
+// What the pre-scan sees: where each document starts, and how many nodes the text holds (at most
+// max_nodes: yaml_input.hpp, max_yaml_nodes).
 struct DocumentStarts : YAML::EventHandler {
+  DocumentStarts(const std::string& file, std::size_t max_nodes) : file_(file), max_nodes_(max_nodes) {}
   std::vector<YAML::Mark> starts;
   void OnDocumentStart(const YAML::Mark& mark) override { starts.push_back(mark); }
   void OnDocumentEnd() override {}
-  void OnNull(const YAML::Mark&, YAML::anchor_t) override {}
-  void OnAlias(const YAML::Mark&, YAML::anchor_t) override {}
-  void OnScalar(const YAML::Mark&, const std::string&, YAML::anchor_t, const std::string&) override {}
-  void OnSequenceStart(const YAML::Mark&, const std::string&, YAML::anchor_t, YAML::EmitterStyle::value) override {}
+  void OnNull(const YAML::Mark& m, YAML::anchor_t) override { node(m); }
+  void OnAlias(const YAML::Mark& m, YAML::anchor_t) override { node(m); }
+  void OnScalar(const YAML::Mark& m, const std::string&, YAML::anchor_t, const std::string&) override { node(m); }
+  void OnSequenceStart(const YAML::Mark& m, const std::string&, YAML::anchor_t, YAML::EmitterStyle::value) override {
+    node(m);
+  }
   void OnSequenceEnd() override {}
-  void OnMapStart(const YAML::Mark&, const std::string&, YAML::anchor_t, YAML::EmitterStyle::value) override {}
+  void OnMapStart(const YAML::Mark& m, const std::string&, YAML::anchor_t, YAML::EmitterStyle::value) override {
+    node(m);
+  }
   void OnMapEnd() override {}
+
+ private:
+  void node(const YAML::Mark& m) {
+    if (++nodes_ > max_nodes_)
+      throw InputError(file_, m.line >= 0 ? m.line + 1 : 0, "",
+                       "holds more than " + std::to_string(max_nodes_) +
+                           " YAML values; no study or model file needs that many");
+  }
+  const std::string& file_;
+  std::size_t max_nodes_ = 0, nodes_ = 0;
 };
 
 // yaml-cpp 0.7 (Debian 12) stops consuming a stream at some malformed tokens (a ',' outside any
@@ -246,10 +263,10 @@ struct DocumentStarts : YAML::EventHandler {
 // allocating about 0.5 GB a second (found by tests/fuzz; yaml-cpp issue 1040, fixed upstream by
 // pull request 1319 in 2024). Each document must start past the one before; a document that starts
 // where the previous one started is refused here, before YAML::LoadAll is called.
-void check_documents_advance(const std::string& text, const std::string& file) {
+void check_documents_advance(const std::string& text, const std::string& file, std::size_t max_nodes) {
   std::istringstream stream(text);
   YAML::Parser parser(stream);
-  DocumentStarts documents;
+  DocumentStarts documents(file, max_nodes);
   while (parser.HandleNextDocument(documents)) {
     const std::size_t n = documents.starts.size();
     if (n >= 2 && documents.starts[n - 1].pos <= documents.starts[n - 2].pos) {
@@ -266,10 +283,10 @@ void check_documents_advance(const std::string& text, const std::string& file) {
 
 }  // namespace
 
-YAML::Node parse_yaml(const std::string& text, const std::string& file) {
+YAML::Node parse_yaml(const std::string& text, const std::string& file, std::size_t max_nodes) {
   std::vector<YAML::Node> documents;
   try {
-    check_documents_advance(text, file);
+    check_documents_advance(text, file, max_nodes);
     documents = YAML::LoadAll(text);
   } catch (const YAML::DeepRecursion& e) {  // yaml-cpp's guard against unbounded recursion
     throw InputError(file, e.mark.line >= 0 ? e.mark.line + 1 : 0, "",

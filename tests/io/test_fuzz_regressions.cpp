@@ -64,3 +64,17 @@ TEST_CASE("a stray comma at the top of a YAML file is malformed YAML, not an end
   const InputError two = error_of([] { io::parse_study("name: a\n---\nname: b\n", "two.yaml"); });
   CHECK_THAT(two.message, Catch::Contains("holds 2 YAML documents"));
 }
+
+// Found while fuzzing: yaml-cpp keeps about 470 bytes per node, so a file of many short scalars can
+// take gigabytes before any limit of the readers applies. The nodes are counted by a pre-scan first
+// (yaml_input.hpp, max_yaml_nodes); here with a limit of 100 so that the test stays small.
+TEST_CASE("a YAML text with more nodes than the limit is refused before it is loaded", "[fuzz_regressions]") {
+  std::string list = "values: [";
+  for (int i = 0; i < 200; ++i) list += (i ? "," : "") + std::to_string(i);
+  list += "]\n";
+  const InputError e = error_of([&] { io::input::parse_yaml(list, "many.yaml", 100); });
+  CHECK(e.file == "many.yaml");
+  CHECK(e.line == 1);
+  CHECK(e.message.find("more than 100 YAML values") != std::string::npos);
+  CHECK_NOTHROW(io::input::parse_yaml(list, "many.yaml", 1000));
+}
