@@ -7,9 +7,9 @@
 #include <cstdlib>
 #include <vector>
 
-#include "core/dataset.hpp"
-#include "core/forward_backward.hpp"
-#include "core/synthetic.hpp"
+#include "core/world/dataset.hpp"
+#include "core/fitting/forward_backward.hpp"
+#include "core/world/synthetic.hpp"
 
 int main(int argc, char** argv) {
   using namespace dobudget;

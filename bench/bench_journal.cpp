@@ -26,7 +26,7 @@
 #include <string>
 #include <vector>
 
-#include "core/runner.hpp"
+#include "core/running/runner.hpp"
 #include "io/atomic_file.hpp"
 #include "io/journal.hpp"
 #include "io/run_directory.hpp"

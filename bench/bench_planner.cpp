@@ -10,9 +10,9 @@
 #include <cstdlib>
 #include <vector>
 
-#include "core/plan_value.hpp"
-#include "core/planner.hpp"
-#include "core/return_gap.hpp"
+#include "core/measures/plan_value.hpp"
+#include "core/measures/planner.hpp"
+#include "core/measures/return_gap.hpp"
 
 using namespace dobudget;
 

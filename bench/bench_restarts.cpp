@@ -10,10 +10,10 @@
 #include <cstdlib>
 #include <vector>
 
-#include "core/dataset.hpp"
-#include "core/fit.hpp"
-#include "core/model_kl.hpp"
-#include "core/synthetic.hpp"
+#include "core/world/dataset.hpp"
+#include "core/fitting/fit.hpp"
+#include "core/measures/model_kl.hpp"
+#include "core/world/synthetic.hpp"
 
 int main(int argc, char** argv) {
   using namespace dobudget;

@@ -5,7 +5,7 @@
 
 #include "cli/commands.hpp"
 #include "cli/option_values.hpp"
-#include "core/answer.hpp"
+#include "core/answer/answer.hpp"
 #include "io/answer_table.hpp"
 #include "io/finished_run.hpp"
 #include "io/runs_table.hpp"

@@ -6,9 +6,9 @@
 #include <thread>
 
 #include "cli/commands.hpp"
-#include "core/cost_estimate.hpp"
-#include "core/memory_estimate.hpp"
-#include "core/unit.hpp"
+#include "core/running/cost_estimate.hpp"
+#include "core/running/memory_estimate.hpp"
+#include "core/running/unit.hpp"
 #include "io/machine_memory.hpp"
 #include "io/memory_messages.hpp"
 #include "io/study_file.hpp"

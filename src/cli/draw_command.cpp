@@ -4,7 +4,7 @@
 #include <cstdio>
 
 #include "cli/commands.hpp"
-#include "core/synthetic.hpp"
+#include "core/world/synthetic.hpp"
 #include "io/atomic_file.hpp"
 #include "io/file_name.hpp"
 #include "io/model_file.hpp"

@@ -20,8 +20,8 @@
 #include <string_view>
 #include <vector>
 
-#include "core/answer.hpp"
-#include "core/settings.hpp"
+#include "core/answer/answer.hpp"
+#include "core/running/settings.hpp"
 
 namespace dobudget::io {
 

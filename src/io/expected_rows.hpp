@@ -11,9 +11,9 @@
 #include <string>
 #include <vector>
 
-#include "core/run_record.hpp"
-#include "core/settings.hpp"
-#include "core/unit.hpp"
+#include "core/running/run_record.hpp"
+#include "core/running/settings.hpp"
+#include "core/running/unit.hpp"
 
 namespace dobudget::io {
 

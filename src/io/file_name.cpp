@@ -2,7 +2,7 @@
 
 #include <fmt/format.h>
 
-#include "core/seeding.hpp"
+#include "core/world/seeding.hpp"
 
 namespace dobudget::io {
 

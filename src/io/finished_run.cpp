@@ -6,7 +6,7 @@
 #include <limits>
 #include <optional>
 
-#include "core/unit.hpp"
+#include "core/running/unit.hpp"
 #include "io/atomic_file.hpp"
 #include "io/expected_rows.hpp"
 #include "io/input_error.hpp"

@@ -17,8 +17,8 @@
 #include <string>
 #include <vector>
 
-#include "core/run_record.hpp"
-#include "core/settings.hpp"
+#include "core/running/run_record.hpp"
+#include "core/running/settings.hpp"
 
 namespace dobudget::io {
 

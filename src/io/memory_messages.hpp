@@ -12,7 +12,7 @@
 #include <optional>
 #include <string>
 
-#include "core/memory_estimate.hpp"
+#include "core/running/memory_estimate.hpp"
 #include "io/input_error.hpp"
 #include "io/machine_memory.hpp"
 

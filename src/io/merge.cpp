@@ -7,7 +7,7 @@
 #include <chrono>
 #include <set>
 
-#include "core/unit.hpp"
+#include "core/running/unit.hpp"
 #include "io/answer_table.hpp"
 #include "io/atomic_file.hpp"
 #include "io/expected_rows.hpp"

@@ -30,9 +30,9 @@
 #include <string>
 #include <vector>
 
-#include "core/answer.hpp"
-#include "core/run_record.hpp"
-#include "core/settings.hpp"
+#include "core/answer/answer.hpp"
+#include "core/running/run_record.hpp"
+#include "core/running/settings.hpp"
 #include "io/run_directory.hpp"
 
 namespace dobudget::io {

@@ -30,7 +30,7 @@
 #include <filesystem>
 #include <string>
 
-#include "core/pomdp.hpp"
+#include "core/world/pomdp.hpp"
 
 namespace dobudget::io {
 

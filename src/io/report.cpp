@@ -426,7 +426,7 @@ bool drawable(const std::vector<Series<Cell>>& series, const std::vector<Role>& 
 std::string summary_dat(const std::vector<CellSummary>& cells, std::string_view title) {
   std::string s = title_comment(title);
   s += "# One block per strategy and logged budget (gnuplot: index 0, 1, ...), separated by two blank lines.\n"
-       "# Statistics over (environment draw, replicate) pairs, as summarise() computes them (src/core/summary.hpp):\n"
+       "# Statistics over (environment draw, replicate) pairs, as summarise() computes them (src/core/answer/summary.hpp):\n"
        "# count = pairs with a value, sd = sample standard deviation, quantiles of type 7 (Hyndman and Fan).\n"
        "# NaN: no value, or not finite (an infinite measure).\n"
        "# columns: strategy logged pilot count mean sd median q10 q90\n";
@@ -440,7 +440,7 @@ std::string summary_dat(const std::vector<CellSummary>& cells, std::string_view 
 std::string success_dat(const std::vector<SuccessCell>& cells, std::string_view title) {
   std::string s = title_comment(title);
   s += "# One block per strategy and logged budget (gnuplot: index 0, 1, ...), separated by two blank lines.\n"
-       "# Raw success fraction (src/core/success_curve.hpp): of the pairs with a value, those at most the target;\n"
+       "# Raw success fraction (src/core/answer/success_curve.hpp): of the pairs with a value, those at most the target;\n"
        "# the answer makes it non-decreasing in the budget before interpolating. NaN: no pair has a value.\n"
        "# columns: strategy logged pilot pairs successes fraction\n";
   s += blocks(cells, [](const SuccessCell& c) {

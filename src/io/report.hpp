@@ -51,10 +51,10 @@
 #include <string_view>
 #include <vector>
 
-#include "core/answer.hpp"
-#include "core/measure.hpp"
-#include "core/success_curve.hpp"
-#include "core/summary.hpp"
+#include "core/answer/answer.hpp"
+#include "core/measures/measure.hpp"
+#include "core/answer/success_curve.hpp"
+#include "core/answer/summary.hpp"
 
 namespace dobudget::io {
 

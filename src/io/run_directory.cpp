@@ -9,8 +9,8 @@
 #include <ctime>
 #include <stdexcept>
 
-#include "core/runner.hpp"
-#include "core/seeding.hpp"
+#include "core/running/runner.hpp"
+#include "core/world/seeding.hpp"
 #include "io/atomic_file.hpp"
 #include "io/expected_rows.hpp"
 #include "io/input_error.hpp"

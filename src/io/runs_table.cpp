@@ -11,7 +11,7 @@
 
 #include "io/atomic_file.hpp"
 #include "io/csv.hpp"
-#include "core/unit.hpp"
+#include "core/running/unit.hpp"
 #include "io/input_error.hpp"
 #include "io/regular_file.hpp"
 

@@ -19,7 +19,7 @@
 #include <string>
 #include <vector>
 
-#include "core/run_record.hpp"
+#include "core/running/run_record.hpp"
 
 namespace dobudget::io {
 

@@ -66,7 +66,7 @@
 #include <filesystem>
 #include <string>
 
-#include "core/settings.hpp"
+#include "core/running/settings.hpp"
 #include "io/input_error.hpp"
 
 namespace dobudget::io {

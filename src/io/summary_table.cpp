@@ -4,7 +4,7 @@
 
 #include <cmath>
 
-#include "core/summary.hpp"
+#include "core/answer/summary.hpp"
 #include "io/text_escape.hpp"
 
 namespace dobudget::io {

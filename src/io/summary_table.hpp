@@ -4,9 +4,9 @@
 #include <string>
 #include <vector>
 
-#include "core/run_record.hpp"
-#include "core/settings.hpp"
-#include "core/summary.hpp"
+#include "core/running/run_record.hpp"
+#include "core/running/settings.hpp"
+#include "core/answer/summary.hpp"
 
 namespace dobudget::io {
 

@@ -19,7 +19,7 @@
 #include <thread>
 #include <utility>
 
-#include "core/stop.hpp"
+#include "core/running/stop.hpp"
 #include "io/journal.hpp"
 
 namespace dobudget::mpi {

@@ -65,9 +65,9 @@
 #include <functional>
 #include <vector>
 
-#include "core/runner.hpp"
-#include "core/settings.hpp"
-#include "core/unit.hpp"
+#include "core/running/runner.hpp"
+#include "core/running/settings.hpp"
+#include "core/running/unit.hpp"
 
 namespace dobudget::mpi {
 

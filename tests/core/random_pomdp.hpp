@@ -5,8 +5,8 @@
 #include <boost/random/gamma_distribution.hpp>
 #include <boost/random/uniform_01.hpp>
 
-#include "core/pomdp.hpp"
-#include "core/seeding.hpp"
+#include "core/world/pomdp.hpp"
+#include "core/world/seeding.hpp"
 
 namespace dobudget::test {
 

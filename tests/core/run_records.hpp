@@ -2,7 +2,7 @@
 #pragma once
 #include <optional>
 
-#include "core/run_record.hpp"
+#include "core/running/run_record.hpp"
 
 namespace dobudget::test {
 

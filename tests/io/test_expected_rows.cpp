@@ -2,7 +2,7 @@
 // accepted only with exactly its unit's rows, in order, with the measures the scenario takes.
 #include <catch2/catch.hpp>
 
-#include "core/unit.hpp"
+#include "core/running/unit.hpp"
 #include "io/expected_rows.hpp"
 #include "io/study_file.hpp"
 #include "../core/run_records.hpp"

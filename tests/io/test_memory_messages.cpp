@@ -4,7 +4,7 @@
 
 #include <string>
 
-#include "core/memory_estimate.hpp"
+#include "core/running/memory_estimate.hpp"
 #include "io/memory_messages.hpp"
 #include "io/study_file.hpp"
 

@@ -22,9 +22,9 @@
 
 #include <fmt/format.h>
 
-#include "core/success_curve.hpp"
-#include "core/summary.hpp"
-#include "core/unit.hpp"
+#include "core/answer/success_curve.hpp"
+#include "core/answer/summary.hpp"
+#include "core/running/unit.hpp"
 #include "io/atomic_file.hpp"
 #include "io/child_process.hpp"
 #include "io/report.hpp"

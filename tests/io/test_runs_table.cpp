@@ -10,7 +10,7 @@
 #include <limits>
 
 #include "input_error_of.hpp"
-#include "core/unit.hpp"
+#include "core/running/unit.hpp"
 #include "io/runs_table.hpp"
 #include "temp_dir.hpp"
 

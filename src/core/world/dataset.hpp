@@ -1,0 +1,38 @@
+// Episodes of one regime, stored contiguously: episode i has observations o_0..o_H at
+// observations[i*(H+1) + t] and actions a_0..a_{H-1} at actions[i*H + t]. Budgets are nested:
+// a budget of n episodes is the first n episodes of the largest budget's data (design.md sec. 6).
+#pragma once
+#include <cstdint>
+#include <vector>
+
+#include "core/world/pomdp.hpp"
+#include "core/world/seeding.hpp"
+
+namespace dobudget {
+
+enum class Regime { pilot, logged };
+
+struct Dataset {
+  int horizon = 0;
+  int count = 0;
+  std::vector<std::int32_t> observations;
+  std::vector<std::int32_t> actions;
+
+  const std::int32_t* obs(int i) const { return observations.data() + static_cast<std::ptrdiff_t>(i) * (horizon + 1); }
+  const std::int32_t* act(int i) const { return actions.data() + static_cast<std::ptrdiff_t>(i) * horizon; }
+};
+
+// A prefix of a dataset, as seen by a fit: the first `count` episodes, with the regime they
+// were recorded under.
+struct DataView {
+  const Dataset* data = nullptr;
+  int count = 0;
+  Regime regime = Regime::pilot;
+};
+
+// n episodes of `env` where actions come from the uniform policy (pilot regime, and the default
+// evaluation policy) or from the privileged logging policy acting on the hidden state (logged
+// regime). Per step: a_t, then s_{t+1} ~ T[a_t](s_t, .), then o_{t+1} ~ E(s_{t+1}, .).
+Dataset simulate(const Environment& env, Regime regime, int n, Engine& rng);
+
+}  // namespace dobudget
