@@ -232,7 +232,7 @@ FitResult fit(const std::vector<DataView>& data, bool decision_rule, const FitSe
   const int Z = s.latent_states;
   double observations = 0.0;
   for (const auto& v : data)
-    if (v.data != nullptr) observations += static_cast<double>(v.count) * (v.data->horizon + 1);
+    if (v.data != nullptr) observations += v.data->observations_in(v.count);
   const Vector freq = observation_frequencies(data, shape.observations);
   const Vector action_freq = logged_action_frequencies(data, shape.actions);
   ForwardBackward fb(Z, shape.actions, shape.observations, max_horizon(data));

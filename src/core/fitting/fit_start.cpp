@@ -24,7 +24,7 @@ Vector observation_frequencies(const std::vector<DataView>& data, int O) {
   Vector f = Vector::Constant(O, 1e-3);
   for (const auto& v : data)
     for (int i = 0; i < v.count; ++i)
-      for (int t = 0; t <= v.data->horizon; ++t) f(v.data->obs(i)[t]) += 1.0;
+      for (int t = 0; t <= v.data->length(i); ++t) f(v.data->obs(i)[t]) += 1.0;
   return f / f.sum();
 }
 
@@ -33,7 +33,7 @@ Vector logged_action_frequencies(const std::vector<DataView>& data, int A) {
   for (const auto& v : data)
     if (v.regime == Regime::logged)
       for (int i = 0; i < v.count; ++i)
-        for (int t = 0; t < v.data->horizon; ++t) f(v.data->act(i)[t]) += 1.0;
+        for (int t = 0; t < v.data->length(i); ++t) f(v.data->act(i)[t]) += 1.0;
   return f / f.sum();
 }
 
@@ -55,8 +55,9 @@ void random_start(Engine& rng, const std::vector<DataView>& data, const Vector& 
       std::size_t vi = 0;
       while (e >= data[vi].count) e -= data[vi++].count;
       const Dataset& d = *data[vi].data;
-      const int w = std::min(d.horizon + 1, 3);
-      const int t0 = uniform_index(rng, d.horizon + 2 - w);
+      const int len = d.length(static_cast<int>(e));
+      const int w = std::min(len + 1, 3);
+      const int t0 = uniform_index(rng, len + 2 - w);
       Vector h = Vector::Zero(O);
       for (int t = t0; t < t0 + w; ++t) h(d.obs(static_cast<int>(e))[t]) += 1.0 / w;
       points.push_back(std::move(h));

@@ -127,14 +127,15 @@ void ForwardBackward::backward_and_count(const std::int32_t* o, const std::int32
     if (w) Eigen::Map<ZVec<ZC>>(gamma_A_.data() + static_cast<std::ptrdiff_t>(a[t]) * Z, Z) += g;
     if (t == 0) c.initial += g;
   }
+  if (H == 0) c.initial += Eigen::Map<const ZVec<ZC>>(al, Z);  // gamma_0 = alpha_0
 }
 
 template <int ZC>
 double ForwardBackward::run_episodes(const Dataset& d, int count, bool logged, ExpectedCounts& counts) {
   double ll = 0.0;
   for (int i = 0; i < count; ++i) {
-    ll += forward<ZC>(d.obs(i), d.act(i), d.horizon, logged);
-    backward_and_count<ZC>(d.obs(i), d.act(i), d.horizon, logged, counts);
+    ll += forward<ZC>(d.obs(i), d.act(i), d.length(i), logged);
+    backward_and_count<ZC>(d.obs(i), d.act(i), d.length(i), logged, counts);
   }
   return ll;
 }
@@ -178,7 +179,7 @@ double ForwardBackward::accumulate(const DataView& view, ExpectedCounts& counts)
 double ForwardBackward::log_likelihood(const DataView& view) {
   const Dataset& d = *view.data;
   double ll = 0.0;
-  for (int i = 0; i < view.count; ++i) ll += forward<0>(d.obs(i), d.act(i), d.horizon, view.regime == Regime::logged);
+  for (int i = 0; i < view.count; ++i) ll += forward<0>(d.obs(i), d.act(i), d.length(i), view.regime == Regime::logged);
   return ll;
 }
 

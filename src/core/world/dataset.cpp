@@ -6,6 +6,13 @@
 
 namespace dobudget {
 
+double Dataset::observations_in(int n) const {
+  if (lengths.empty()) return static_cast<double>(n) * (horizon + 1);
+  double total = 0.0;
+  for (int i = 0; i < n; ++i) total += length(i) + 1;
+  return total;
+}
+
 Dataset simulate(const Environment& env, Regime regime, int n, Engine& rng) {
   const Pomdp& m = env.model;
   Dataset d;

@@ -1,5 +1,7 @@
 // Episodes of one regime, stored contiguously: episode i has observations o_0..o_H at
-// observations[i*(H+1) + t] and actions a_0..a_{H-1} at actions[i*H + t]. Budgets are nested:
+// observations[i*(H+1) + t] and actions a_0..a_{H-1} at actions[i*H + t]. An episode may stop
+// early (imported records): then it has length(i) <= H actions, o_0..o_{length(i)}, and the
+// slots after its end are unused (the stride stays H). Budgets are nested:
 // a budget of n episodes is the first n episodes of the largest budget's data (design.md sec. 6).
 #pragma once
 #include <cstdint>
@@ -17,6 +19,12 @@ struct Dataset {
   int count = 0;
   std::vector<std::int32_t> observations;
   std::vector<std::int32_t> actions;
+  // Actions per episode when episodes differ in length; empty: every episode has `horizon`.
+  std::vector<std::int32_t> lengths;
+
+  int length(int i) const { return lengths.empty() ? horizon : lengths[static_cast<std::size_t>(i)]; }
+  // Observations in the first n episodes: sum_i (length(i) + 1).
+  double observations_in(int n) const;
 
   const std::int32_t* obs(int i) const { return observations.data() + static_cast<std::ptrdiff_t>(i) * (horizon + 1); }
   const std::int32_t* act(int i) const { return actions.data() + static_cast<std::ptrdiff_t>(i) * horizon; }

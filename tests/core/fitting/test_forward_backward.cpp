@@ -132,7 +132,7 @@ double fb_brute_likelihood(const Pomdp& m, const Matrix* decision, const std::in
 
 double fb_brute_loglik(const Pomdp& m, const Matrix* decision, const Dataset& d) {
   double ll = 0.0;
-  for (int i = 0; i < d.count; ++i) ll += std::log(fb_brute_likelihood(m, decision, d.obs(i), d.act(i), d.horizon));
+  for (int i = 0; i < d.count; ++i) ll += std::log(fb_brute_likelihood(m, decision, d.obs(i), d.act(i), d.length(i)));
   return ll;
 }
 
@@ -146,7 +146,7 @@ ExpectedCounts fb_brute_counts(const Pomdp& m, const Matrix* decision, const Dat
   for (int i = 0; i < d.count; ++i) {
     const auto* o = d.obs(i);
     const auto* a = d.act(i);
-    const int H = d.horizon;
+    const int H = d.length(i);
     const double p = fb_brute_likelihood(m, decision, o, a, H);
     c.loglik += std::log(p);
     fb_for_each_path(m.states, H, [&](const std::vector<int>& z) {
@@ -503,6 +503,39 @@ TEST_CASE("forward-backward: expected counts equal brute-force posterior margina
                             p.transitions[static_cast<std::size_t>(a)] + l.transitions[static_cast<std::size_t>(a)]) <= 1e-12);
     CHECK(fb_max_abs_diff(c.emissions, p.emissions + l.emissions) <= 1e-12);
     CHECK(fb_max_abs_diff(c.decision, l.decision) <= 1e-12);
+  }
+}
+
+TEST_CASE("forward-backward: episodes that stop early equal brute force over their own length", "[forward_backward]") {
+  // Imported records may stop early: an episode of length L has o_0..o_L and a_0..a_{L-1}; its
+  // likelihood and posterior marginals are those of an episode of horizon L. Reference: the same
+  // brute-force enumeration over latent paths as above (Rabiner 1989 eqs. 37-40), run per episode
+  // on its own length, including an episode of length 0 (o_0 only).
+  Engine rng(777);
+  const int Z = 3, A = 2, O = 3, H = 4;
+  const Pomdp m = fb_random_model(Z, A, O, H, rng);
+  const Matrix D = fb_random_decision(Z, A, rng);
+  Dataset d = fb_random_dataset(5, H, A, O, rng);
+  d.lengths = {4, 1, 0, 3, 2};
+  CHECK(d.observations_in(5) == 15.0);
+  for (Regime regime : {Regime::pilot, Regime::logged}) {
+    INFO((regime == Regime::logged ? "logged" : "pilot"));
+    ForwardBackward fb(Z, A, O, H);
+    fb.load(m, &D);
+    ExpectedCounts c;
+    c.reset(Z, A, O);
+    const double ll = fb.accumulate({&d, d.count, regime}, c);
+    const ExpectedCounts ref = fb_brute_counts(m, regime == Regime::logged ? &D : nullptr, d);
+    CHECK(ll == Approx(ref.loglik).epsilon(1e-12));
+    CHECK(log_likelihood({{&d, d.count, regime}}, m, D) == Approx(ref.loglik).epsilon(1e-12));
+    CHECK(fb_max_abs_diff(c.initial, ref.initial) <= 1e-12);
+    for (int a = 0; a < A; ++a)
+      CHECK(fb_max_abs_diff(c.transitions[static_cast<std::size_t>(a)], ref.transitions[static_cast<std::size_t>(a)]) <= 1e-12);
+    CHECK(fb_max_abs_diff(c.emissions, ref.emissions) <= 1e-12);
+    CHECK(fb_max_abs_diff(c.decision, ref.decision) <= 1e-12);
+    CHECK(ref.initial.sum() == Approx(5.0));
+    CHECK(ref.emissions.sum() == Approx(15.0));
+    if (regime == Regime::logged) CHECK(ref.decision.sum() == Approx(10.0));
   }
 }
 
