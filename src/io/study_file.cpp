@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "io/model_file.hpp"
+#include "io/study_keys.hpp"
 #include "io/text_escape.hpp"
 #include "io/yaml_input.hpp"
 
@@ -26,21 +27,19 @@ using input::Reader;
 
 // ---- Schema -------------------------------------------------------------------------------------
 
-const std::vector<std::string> top_keys{"name",       "seed",       "environment", "logging", "pilot",
-                                        "budgets",    "replicates", "strategies",  "measures", "fit",
-                                        "evaluation", "planner",    "targets",     "assurance", "sweep"};
-const std::vector<std::string> environment_keys{"states",   "actions", "observations",           "horizon",
-                                                "discount", "draws",   "dynamics_concentration", "observation_noise",
-                                                "file",     "model"};
+// The keys of each mapping and the sweepable keys come from the key table (study_keys.hpp).
+const std::vector<std::string> top_keys = study_section_keys("");
+const std::vector<std::string> environment_keys = study_section_keys("environment");
+// The environment keys of the synthetic family, refused together with a given model.
 const std::vector<std::string> family_keys{"states", "actions", "observations", "dynamics_concentration",
                                            "observation_noise"};
-const std::vector<std::string> logging_keys{"privilege", "temperature", "q_discount"};
-const std::vector<std::string> pilot_keys{"policy"};
-const std::vector<std::string> budget_keys{"logged", "pilot"};
-const std::vector<std::string> fit_keys{"latent_states", "restarts", "max_restarts", "max_iterations", "tolerance",
-                                        "prior"};
-const std::vector<std::string> evaluation_keys{"trajectories", "policy"};
-const std::vector<std::string> planner_keys{"belief_points", "seed", "exact_histories", "rollouts"};
+const std::vector<std::string> logging_keys = study_section_keys("logging");
+const std::vector<std::string> pilot_keys = study_section_keys("pilot");
+const std::vector<std::string> budget_keys = study_section_keys("budgets");
+const std::vector<std::string> fit_keys = study_section_keys("fit");
+const std::vector<std::string> evaluation_keys = study_section_keys("evaluation");
+const std::vector<std::string> planner_keys = study_section_keys("planner");
+const std::vector<std::string> target_keys = study_section_keys("targets");
 
 std::vector<std::string> strategy_names() {
   std::vector<std::string> out;
@@ -55,38 +54,9 @@ std::vector<std::string> measure_names() {
 }
 
 // How a swept value is read (and written canonically) before it is checked in place.
-enum class Kind { whole, seed, number, text };
+using Kind = SweepKind;
 
-const std::vector<std::pair<std::string, Kind>> sweepable{
-    {"environment.states", Kind::whole},
-    {"environment.actions", Kind::whole},
-    {"environment.observations", Kind::whole},
-    {"environment.horizon", Kind::whole},
-    {"environment.discount", Kind::number},
-    {"environment.draws", Kind::whole},
-    {"environment.dynamics_concentration", Kind::number},
-    {"environment.observation_noise", Kind::number},
-    {"logging.privilege", Kind::number},
-    {"logging.temperature", Kind::number},
-    {"logging.q_discount", Kind::number},
-    {"pilot.policy", Kind::text},
-    {"replicates", Kind::whole},
-    {"fit.latent_states", Kind::whole},
-    {"fit.restarts", Kind::whole},
-    {"fit.max_restarts", Kind::whole},
-    {"fit.max_iterations", Kind::whole},
-    {"fit.tolerance", Kind::number},
-    {"fit.prior", Kind::number},
-    {"evaluation.trajectories", Kind::whole},
-    {"evaluation.policy", Kind::text},
-    {"planner.belief_points", Kind::whole},
-    {"planner.seed", Kind::seed},
-    {"planner.exact_histories", Kind::whole},
-    {"planner.rollouts", Kind::whole},
-    {"targets.model_kl", Kind::number},
-    {"targets.return_gap", Kind::number},
-    {"assurance", Kind::number},
-};
+const std::vector<std::pair<std::string, Kind>> sweepable = sweepable_study_keys();
 
 std::vector<std::string> sweepable_paths() {
   std::vector<std::string> out;
@@ -112,6 +82,10 @@ std::vector<std::pair<std::string, std::string>> sweep_refusals() {
     out.emplace_back(section, fmt::format("is a section; sweep one of its single-valued keys instead, e.g. {}", example));
   out.emplace_back("budgets", "is a section of lists, and lists cannot be swept (every scenario uses the whole list)");
   out.emplace_back("sweep", "cannot be swept");
+  for (const StudyKey& k : study_keys())  // any other key of the table that is not sweepable
+    if (k.sweep == SweepKind::none &&
+        std::none_of(out.begin(), out.end(), [&](const auto& r) { return r.first == k.path; }))
+      out.emplace_back(std::string(k.path), "cannot be swept");
   return out;
 }
 
@@ -479,7 +453,7 @@ class StudyParser {
 
   std::map<Measure, double> targets(const Section& top, const std::vector<Measure>& measures) const {
     const auto measured = [&](Measure m) { return std::find(measures.begin(), measures.end(), m) != measures.end(); };
-    const Section t = section(top, "targets", measure_names());
+    const Section t = section(top, "targets", target_keys);
     const bool swept = std::any_of(overrides_.begin(), overrides_.end(),
                                    [](const auto& o) { return o.first.rfind("targets.", 0) == 0; });
     std::map<Measure, double> out;
@@ -529,6 +503,7 @@ class StudyParser {
           case Kind::seed: canonical = fmt::format("{}", in_.unsigned_whole(item)); break;
           case Kind::number: canonical = number_text(in_.number(item)); break;
           case Kind::text: canonical = in_.text(item); break;
+          case Kind::none: throw std::logic_error("not a sweepable key: " + e.name);  // sweepable lists none
         }
         for (std::size_t j = 0; j < i; ++j)
           if (axis.canonical[j] == canonical)
