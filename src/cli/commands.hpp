@@ -50,4 +50,7 @@ int merge_command(const MergeArgs& args);
 // Figures (gnuplot) and a report page in DIR/report/, from a finished run directory.
 int report_command(const std::string& dir);
 
+// A reference page generated from the program's tables, to stdout ("study-file": docs/study-file.md).
+int reference_command(const std::string& page);
+
 }  // namespace dobudget::cli

@@ -85,6 +85,11 @@ int main(int argc, char** argv) {
   auto* report = app.add_subcommand("report", "Figures (gnuplot) and a report page, DIR/report/report.md, from a finished run");
   report->add_option("dir", report_dir, "Run directory")->required();
 
+  std::string reference_page;
+  auto* reference = app.add_subcommand("reference", "Print a reference page generated from the program's tables");
+  reference->add_option("page", reference_page, "study-file (docs/study-file.md)")->required();
+  reference->group("");  // hidden: for maintainers, who regenerate docs/ with it
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -99,6 +104,7 @@ int main(int argc, char** argv) {
     if (*answer) return answer_command(answer_args);
     if (*merge) return merge_command(merge_args);
     if (*report) return report_command(report_dir);
+    if (*reference) return reference_command(reference_page);
   } catch (const io::InputError& e) {
     std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());
     return 2;
