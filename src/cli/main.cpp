@@ -4,6 +4,7 @@
 
 #include <cstdio>
 
+#include "cli/command_examples.hpp"
 #include "cli/commands.hpp"
 #include "io/input_error.hpp"
 #include "io/text_escape.hpp"
@@ -27,16 +28,7 @@ int main(int argc, char** argv) {
       "budgets, fits models three ways (pilot-only, pooled, regime-aware), and reports the pilot budget that\n"
       "reaches a target model error with a stated assurance.",
       "dobudget"};
-  app.footer(std::string("\nExamples:\n"
-                         "  dobudget check configs/default.yaml          validate, show every default, count fits\n"
-                         "  dobudget plan configs/default.yaml --threads 2\n"
-                         "  dobudget plan study.yaml --shard 3/10 --out runs/part3   (one job-array task)\n"
-                         "  dobudget merge runs/part* --out runs/study   (combine the shards)\n"
-                         "  dobudget report runs/default                 (figures and runs/default/report/report.md)\n"
-                         "  dobudget answer runs/default --target model_kl=0.01 --assurance 0.9   (re-analysis, seconds)\n"
-                         "  dobudget draw configs/default.yaml --out envs   (write the synthetic environments)\n\n"
-                         "Caution: ") +
-             caution);
+  app.footer(examples_text() + "\nCaution: " + caution);
   app.require_subcommand(1);
   app.set_version_flag("--version", std::string(DOBUDGET_VERSION));
 
@@ -89,6 +81,10 @@ int main(int argc, char** argv) {
   auto* reference = app.add_subcommand("reference", "Print a reference page generated from the program's tables");
   reference->add_option("page", reference_page, "study-file (docs/study-file.md)")->required();
   reference->group("");  // hidden: for maintainers, who regenerate docs/ with it
+
+  // Each command's --help shows its own examples; `dobudget --help` shows them all (above).
+  for (CLI::App* sub : app.get_subcommands([](CLI::App*) { return true; }))
+    sub->footer(examples_text(sub->get_name()));
 
   try {
     app.parse(argc, argv);
