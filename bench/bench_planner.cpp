@@ -18,7 +18,7 @@ using namespace dobudget;
 
 namespace {
 
-// The synthetic family of design.md sec. 2: p0 ~ Dirichlet(1), T rows ~ Dirichlet(concentration),
+// The synthetic family of docs/design.md, "The synthetic family": p0 ~ Dirichlet(1), T rows ~ Dirichlet(concentration),
 // E(s, .) = (1 - noise) onehot(s mod O) + noise Dirichlet(1), r ~ Uniform(0, 1).
 Pomdp draw(int S, int A, int O, int H, double concentration, double noise, std::uint64_t seed) {
   Engine eng(seed);

@@ -1,4 +1,4 @@
-// Writers for the answer (design.md sec. 5 and 7): answer.csv, answer.md and a terminal table.
+// Writers for the answer (docs/design.md, "The answer"; docs/run-directory.md): answer.csv, answer.md and a terminal table.
 //
 // answer.csv columns (the design fixes the first ten; later ones are appended, never reordered):
 //   scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,

@@ -1,4 +1,4 @@
-// The rows a run of a study must hold (design.md sec. 7), checked wherever rows come back from a
+// The rows a run of a study must hold (docs/run-directory.md), checked wherever rows come back from a
 // file: a journal record on resume and in merge (one unit), runs.csv in `answer` and `report` and
 // before `plan` or `merge` writes it (the whole study).
 //

@@ -1,5 +1,5 @@
 // A finished run directory, loaded for re-analysis (`answer`, `report`) with every check a file
-// that travelled between people needs (design.md sec. 6, 7):
+// that travelled between people needs (docs/run-directory.md):
 //   1. study.resolved.yaml has the study hash recorded at planning time: manifest.json's
 //      study_hash and units.journal's header, whichever are present (an edited copy is refused);
 //      a directory where neither records it is refused (plan and merge always write manifest.json);

@@ -1,4 +1,4 @@
-// Merging run directories (design.md sec. 6, 7; `dobudget merge DIR... --out DIR`): the shards of
+// Merging run directories (docs/clusters.md, "Shards and merge"; `dobudget merge DIR... --out DIR`): the shards of
 // a study, each computed by `dobudget plan --shard K/N` (a scheduler job array), become one
 // complete run directory, the same as a single `plan` of the study would have written:
 // study.resolved.yaml, units.journal (every unit, in canonical order), runs.csv and timings.csv,

@@ -17,7 +17,7 @@ using input::Entry;
 using input::Located;
 using input::Reader;
 
-constexpr double row_tolerance = 1e-9;  // design.md sec. 7
+constexpr double row_tolerance = 1e-9;  // docs/model-file.md
 
 const std::vector<std::string> model_keys{"states",      "actions",   "observations", "initial",
                                           "transitions", "emissions", "rewards",      "logging_policy"};

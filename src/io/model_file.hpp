@@ -1,4 +1,4 @@
-// The model file (design.md sec. 7): one user-given environment, as YAML.
+// The model file (docs/model-file.md): one user-given environment, as YAML.
 //
 //   states: 2
 //   actions: 2

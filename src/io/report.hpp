@@ -1,4 +1,4 @@
-// `dobudget report DIR` (design.md sec. 5, 7): figures and a report page from a finished run
+// `dobudget report DIR` (docs/run-directory.md, "report/"): figures and a report page from a finished run
 // directory, with no simulation.
 //
 // It reads DIR/study.resolved.yaml and DIR/runs.csv, computes the answers (compute_study_answers,

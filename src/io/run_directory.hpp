@@ -1,4 +1,4 @@
-// A run directory (design.md sec. 6, 7): study.resolved.yaml, manifest.json, units.journal (the
+// A run directory (docs/run-directory.md): study.resolved.yaml, manifest.json, units.journal (the
 // resume record), and once every unit is in, runs.csv and timings.csv in canonical order.
 // A directory made by a different study is refused; a second `plan` on the same directory
 // computes only the units its journal lacks.

@@ -1,4 +1,4 @@
-// runs.csv and timings.csv (design.md sec. 7). runs.csv is byte-identical across runs of the same
+// runs.csv and timings.csv (docs/run-directory.md, "runs.csv"). runs.csv is byte-identical across runs of the same
 // study (whatever the threads, shards or ranks): it holds no wall-clock figure, and numbers are
 // written in the shortest form that reads back to the same double. timings.csv holds the same
 // keys with fit_seconds. The design's columns come first; appended after them: `note` (why a

@@ -1,4 +1,4 @@
-// The study file (design.md sec. 7): reading it into a Study with every default filled in and the
+// The study file (docs/study-file.md): reading it into a Study with every default filled in and the
 // sweep expanded, and writing a resolved Study back as YAML.
 //
 // Keys and defaults (every key is optional, but a file must hold at least one: an empty file, or

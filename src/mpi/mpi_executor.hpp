@@ -1,4 +1,4 @@
-// Running the units of `dobudget plan` on MPI ranks (design.md sec. 6; issue 5). Compiled only in
+// Running the units of `dobudget plan` on MPI ranks (docs/clusters.md, "MPI"; issue 5). Compiled only in
 // MPI builds (DOBUDGET_WITH_MPI); nothing outside src/mpi includes <mpi.h>.
 //
 //   mpirun -n P dobudget plan STUDY.yaml --out DIR [--threads T] [--shard K/N]

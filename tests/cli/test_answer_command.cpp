@@ -1,6 +1,6 @@
 // End-to-end checks of `dobudget answer` (issue 4): re-analysis of stored rows gives the same
 // answer as `plan` for the same targets, new targets change it without simulating, and a sweep
-// shows the swept values and the worst case. Properties fixed by design.md sec. 5 and 7.
+// shows the swept values and the worst case. Properties fixed by docs/design.md, "The answer", and docs/run-directory.md.
 #include <catch2/catch.hpp>
 
 #include <sstream>

@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# End-to-end check of the MPI build (issue 5, design.md sec. 6): `mpirun -n P dobudget-mpi plan`
+# End-to-end check of the MPI build (issue 5, docs/clusters.md, "MPI"): `mpirun -n P dobudget-mpi plan`
 # writes the same runs.csv and answer.csv, byte for byte, as a single-process `dobudget plan
 # --threads 1`, whatever P and the threads per rank; only rank 0 prints; a finished directory is
 # resumed, a foreign one refused and a bad study reported once, each without hanging; --shard

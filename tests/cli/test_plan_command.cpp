@@ -1,6 +1,6 @@
 // End-to-end checks of `dobudget plan`, `check` and `draw` (issue 2): determinism across thread
 // counts, bad input refused with exit code 2 and nothing written, foreign run directories refused,
-// resume after interruption. These check properties the design notes fix (design.md sec. 6, 7),
+// resume after interruption. These check properties the documentation fixes (docs/design.md, "Seeding and reproducibility"; docs/run-directory.md),
 // not numbers: the numbers are checked against outside references in tests/core.
 #include <catch2/catch.hpp>
 #include <unistd.h>
@@ -83,7 +83,7 @@ TEST_CASE("check: prints the resolved study with defaults and the number of fits
   write(s / "study.yaml", "name: small\nreplicates: 2\n");
   auto r = run("check " + (s / "study.yaml").string());
   REQUIRE(r.code == 0);
-  CHECK(r.out.find("dynamics_concentration: 0.5") != std::string::npos);  // a default filled in (design.md sec. 7)
+  CHECK(r.out.find("dynamics_concentration: 0.5") != std::string::npos);  // a default filled in (docs/study-file.md)
   // 4 draws x 2 replicates = 8 units; per unit: pilot-only 5 fits, pooled and regime-aware 5 each
   // at logged 1000 (logged 0 shares the pilot-only fit): 15 fits.
   CHECK(r.out.find("8 units, 120 model fits") != std::string::npos);
@@ -108,7 +108,7 @@ TEST_CASE("draw: each environment is written as a model file that a study can us
 
 TEST_CASE("plan: with no room for planning the return_gap cell is empty and the row says why", "[cli][plan]") {
   // Every observation pays the same reward, so every policy has the same value: V* - V_uniform = 0
-  // and the normalised gap (design.md sec. 4) is undefined; issue 3 asks the row to say so.
+  // and the normalised gap (docs/design.md, "return_gap") is undefined; issue 3 asks the row to say so.
   Scratch s("noroom");
   write(s / "model.yaml", R"(states: 2
 actions: 2

@@ -1,4 +1,4 @@
-// End-to-end checks of resuming `dobudget plan` (issue 5; design.md sec. 6): a run killed part-way
+// End-to-end checks of resuming `dobudget plan` (issue 5; docs/clusters.md, "Resume, pre-emption, time limits"): a run killed part-way
 // (SIGKILL) or interrupted (SIGINT) and run again computes only what is missing and ends with the
 // same runs.csv and answer.csv as an uninterrupted run; a torn last journal record is dropped and
 // its unit computed again; a damaged record before the last is an error. Hardening: a flipped bit

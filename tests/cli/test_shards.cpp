@@ -1,4 +1,4 @@
-// End-to-end checks of `dobudget plan --shard K/N` and `dobudget merge` (issue 5; design.md sec. 6,
+// End-to-end checks of `dobudget plan --shard K/N` and `dobudget merge` (issue 5; docs/clusters.md,
 // 7): shards merged in any order give the same runs.csv and answer.csv bytes as a single run with
 // any thread count, and merge refuses inputs that are not exactly one study's units, once each,
 // with exit code 2, a message naming what is wrong, and nothing written at --out.

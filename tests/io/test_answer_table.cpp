@@ -112,7 +112,7 @@ std::vector<AnswerRow> sample_rows() {
 }  // namespace
 
 TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
-  // Header: design.md sec. 7 fixes the first ten columns; the rest are appended (answer_table.hpp).
+  // Header: docs/run-directory.md lists the columns: the first ten came first; the rest are appended (answer_table.hpp).
   // Numbers are written shortest-round-trip, so strtod gives back the same doubles (*common practice*:
   // fmt's "{}" for double is the shortest representation that round-trips).
   TempDir dir;

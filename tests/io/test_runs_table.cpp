@@ -1,4 +1,4 @@
-// runs.csv lines read back to the same record, bit for bit (design.md sec. 7: runs.csv is the
+// runs.csv lines read back to the same record, bit for bit (docs/run-directory.md, "runs.csv": runs.csv is the
 // stored result that `answer`, `merge` and resume read again). IEEE 754 doubles printed in the
 // shortest round-trip form (fmt "{}") must parse back exactly, subnormals included (*common practice*:
 // std::from_chars is specified to be exact; C++17 [charconv.from.chars]). Reading treats the text as

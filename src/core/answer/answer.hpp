@@ -1,4 +1,4 @@
-// The answer (design.md sec. 5): pilot episodes needed, with assurance, a bootstrap interval,
+// The answer (docs/design.md, "The answer"): pilot episodes needed, with assurance, a bootstrap interval,
 // the learning-curve floor, and the savings against pilot-only. A pure computation on stored
 // run records: no files, no YAML, no command line.
 //

@@ -10,7 +10,7 @@
 // violators algorithm (PAVA) and active set methods", J. Stat. Softw. 32(5), 2009, sec. 2.
 // The decreasing fit is the increasing fit of -y, negated.
 //
-// Used by the answer (design.md sec. 5): the success fraction is made non-decreasing in the pilot
+// Used by the answer (docs/design.md, "Needed pilot episodes"): the success fraction is made non-decreasing in the pilot
 // budget, the mean measure non-increasing, with weights = number of pairs at each budget.
 #pragma once
 #include <cstddef>

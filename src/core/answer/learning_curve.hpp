@@ -1,4 +1,4 @@
-// Learning curve e(n) = c + a n^(-b) fitted by weighted nonlinear least squares (design.md sec. 5).
+// Learning curve e(n) = c + a n^(-b) fitted by weighted nonlinear least squares (docs/design.md, "Needed pilot episodes").
 //
 // Objective: minimise  RSS(c, a, b) = sum_i w_i (y_i - c - a n_i^(-b))^2
 // subject to a >= 0 (the error does not grow with more data), b in [b_min, b_max] (default

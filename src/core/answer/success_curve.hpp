@@ -1,4 +1,4 @@
-// The raw success fraction (design.md sec. 5) of each strategy x logged x pilot cell: the fraction
+// The raw success fraction (docs/design.md, "Needed pilot episodes") of each strategy x logged x pilot cell: the fraction
 // of (environment draw, replicate) pairs whose measure is at most the target. This is the quantity
 // the answer makes monotone (isotonic regression) and interpolates; here it is reported as is, per
 // budget, for figures and tables. A pure computation on run records: no files.

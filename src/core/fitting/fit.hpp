@@ -1,6 +1,6 @@
 // Maximum a posteriori fit of the latent model by expectation-maximisation (Baum-Welch with
 // actions as inputs; Dempster, Laird and Rubin, JRSS B 39(1), 1977), with several starts
-// (design.md sec. 3). The objective is log p(data | q) + prior * sum log q (the log posterior
+// (docs/design.md, "Fitting"). The objective is log p(data | q) + prior * sum log q (the log posterior
 // under a symmetric Dirichlet(prior + 1) on every row, up to a constant); EM never decreases it.
 // EM is accelerated by SQUAREM (see fit.cpp).
 //

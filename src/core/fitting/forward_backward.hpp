@@ -1,4 +1,4 @@
-// Scaled forward-backward for the discrete input-output hidden Markov model of design.md sec. 3
+// Scaled forward-backward for the discrete input-output hidden Markov model of docs/design.md, "The latent model"
 // (Bengio and Frasconi, "Input-output HMMs for sequence processing", IEEE TNN 7(5), 1996;
 // scaling as in Rabiner, "A tutorial on hidden Markov models...", Proc. IEEE 77(2), 1989, sec. V.A).
 //

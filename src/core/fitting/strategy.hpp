@@ -1,4 +1,4 @@
-// The three ways to use the data (design.md sec. 3).
+// The three ways to use the data (docs/design.md, "Strategies").
 #pragma once
 #include <array>
 #include <optional>

@@ -1,4 +1,4 @@
-// Measures of quality (design.md sec. 4).
+// Measures of quality (docs/design.md, "Measures").
 #pragma once
 #include <array>
 #include <optional>

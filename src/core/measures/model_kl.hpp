@@ -1,4 +1,4 @@
-// model_kl (design.md sec. 4), in nats per observation:
+// model_kl (docs/design.md, "model_kl"), in nats per observation:
 //   1/(H+1) sum_{t=0..H} E_h[ KL( p(o_t | o_<t, do(a_<t)) || q(o_t | o_<t, do(a_<t)) ) ],
 // with histories h drawn from the true environment under the evaluation policy and each
 // predictive computed exactly by belief filtering in its own model (belief.hpp):

@@ -1,8 +1,8 @@
 // The value of a plan executed in the true environment while the agent tracks its belief with the
 // model it planned in (the "belief model": the truth itself, or a fitted latent model whose
-// number of states may differ). design.md sec. 4, return_gap.
+// number of states may differ). docs/design.md, "return_gap".
 //
-// Execution of one episode (design.md sec. 2): s_0 ~ p0, o_0 ~ E(s_0, .) in the truth; the
+// Execution of one episode (docs/design.md, "Environments"): s_0 ~ p0, o_0 ~ E(s_0, .) in the truth; the
 // agent's belief is b_0 = q0 | o_0 in the belief model. For t = 0..H-1: a_t = choose_action(plan,
 // t, b_t); s_{t+1} ~ T[a_t](s_t, .), o_{t+1} ~ E(s_{t+1}, .) in the truth; the agent collects
 // gamma^t r(o_{t+1}) (the truth's rewards) and updates b_{t+1} = (b_t qT[a_t]) o qE(:, o_{t+1}),

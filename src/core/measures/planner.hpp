@@ -2,7 +2,7 @@
 // value iteration: an anytime algorithm for POMDPs", IJCAI 2003, in its finite-horizon,
 // time-indexed form (one alpha-vector set per decision stage).
 //
-// Conventions (design.md sec. 2). An episode is o_0, a_0, o_1, ..., a_{H-1}, o_H and its return
+// Conventions (docs/design.md, "Environments"). An episode is o_0, a_0, o_1, ..., a_{H-1}, o_H and its return
 // is sum_{t=1..H} gamma^(t-1) r(o_t). The agent decides a_t (t = 0..H-1) from its belief b_t
 // after seeing o_t; b_0 = p0 conditioned on o_0. The stage value is the expected discounted sum
 // of the rewards still to come, measured from the decision at t:

@@ -1,4 +1,4 @@
-// The return_gap measure (design.md sec. 4):
+// The return_gap measure (docs/design.md, "return_gap"):
 //
 //   gap = (V* - V(pi_hat)) / (V* - V_uniform)
 //

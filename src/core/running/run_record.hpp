@@ -1,5 +1,5 @@
 // One row of runs.csv: one (scenario, environment draw, replicate) x strategy x logged x pilot.
-// design.md sec. 7.
+// docs/run-directory.md, "runs.csv".
 #pragma once
 #include <optional>
 #include <string>

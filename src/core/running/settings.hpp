@@ -1,4 +1,4 @@
-// The resolved settings of one scenario of a study (design.md sec. 7), as plain values.
+// The resolved settings of one scenario of a study (docs/study-file.md), as plain values.
 // Reading them from YAML, defaults and validation live in src/io; the core only uses them.
 #pragma once
 #include <cstdint>

@@ -1,4 +1,4 @@
-// A unit of work: one (scenario, environment draw, replicate) (design.md sec. 6). Running a unit
+// A unit of work: one (scenario, environment draw, replicate) (docs/design.md, "Seeding and reproducibility"). Running a unit
 // simulates its nested pilot and logged data, fits every strategy at every budget, and measures
 // each fit against the true environment.
 #pragma once

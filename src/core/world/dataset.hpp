@@ -2,7 +2,7 @@
 // observations[i*(H+1) + t] and actions a_0..a_{H-1} at actions[i*H + t]. An episode may stop
 // early (imported records): then it has length(i) <= H actions, o_0..o_{length(i)}, and the
 // slots after its end are unused (the stride stays H). Budgets are nested:
-// a budget of n episodes is the first n episodes of the largest budget's data (design.md sec. 6).
+// a budget of n episodes is the first n episodes of the largest budget's data (docs/design.md, "Seeding and reproducibility").
 #pragma once
 #include <cstdint>
 #include <vector>

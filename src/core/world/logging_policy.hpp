@@ -1,4 +1,4 @@
-// The privileged decision-maker of the logged regime (design.md sec. 2):
+// The privileged decision-maker of the logged regime (docs/design.md, "Logged regime"):
 //   pi_log(a | s) = privilege * softmax(Q(s, .) / temperature) + (1 - privilege) / |A|,
 // with Q the optimal action value of the fully observed problem, where the reward of moving to
 // s' is the expected observation reward R(s') = sum_o E(s', o) r(o):

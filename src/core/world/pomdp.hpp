@@ -1,4 +1,4 @@
-// A finite partially observable Markov decision process (design.md sec. 2). The same type holds
+// A finite partially observable Markov decision process (docs/design.md, "Environments"). The same type holds
 // a true environment (hidden states S) and a fitted latent model (latent values Z): the
 // planner, the belief filter and model_kl work on either.
 #pragma once

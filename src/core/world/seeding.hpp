@@ -1,6 +1,6 @@
 // Random streams: one per (study seed, scenario, environment draw, replicate, purpose), where every
 // scenario of a study uses scenario component 0 (paired scenarios: unit_stream_key below).
-// design.md sec. 6. Every stream is a Boost.Random engine (output specified by the algorithm,
+// docs/design.md, "Seeding and reproducibility". Every stream is a Boost.Random engine (output specified by the algorithm,
 // hence identical on every platform); std:: distributions are never used.
 #pragma once
 #include <boost/random/mersenne_twister.hpp>

@@ -1,4 +1,4 @@
-// The synthetic family of environments (design.md sec. 2):
+// The synthetic family of environments (docs/design.md, "The synthetic family"):
 //   p0 ~ Dirichlet(1), T[a](s, .) ~ Dirichlet(dynamics_concentration),
 //   E(s, .) = (1 - observation_noise) onehot(s mod |O|) + observation_noise Dirichlet(1),
 //   r(o) ~ Uniform(0, 1).

@@ -61,7 +61,7 @@ std::vector<RunRecord> counted(const std::vector<int>& successes, Strategy s = S
 
 TEST_CASE("answer: assurance crossing has the hand-computed closed form", "[answer]") {
   // Success fractions 0.1, 0.3, 0.6, 0.9, 1.0 at 10, 30, 100, 300, 1000; beta = 0.8.
-  // design.md sec. 5 (log-linear interpolation), by hand: the crossing lies between 100 (0.6) and
+  // docs/design.md, "Needed pilot episodes" (log-linear interpolation), by hand: the crossing lies between 100 (0.6) and
   // 300 (0.9), t = (0.8 - 0.6) / (0.9 - 0.6) = 2/3, n = exp(log 100 + 2/3 log 3) = 100 * 3^(2/3).
   const auto rows = counted({1, 3, 6, 9, 10});
   const auto out = compute_answers(rows, 0, settings_for({Strategy::pilot_only}, {0}), {query(0.5, 0.8)}, 1);
@@ -73,7 +73,7 @@ TEST_CASE("answer: assurance crossing has the hand-computed closed form", "[answ
   CHECK(out[0].high >= out[0].needed_pilot);
   CHECK_FALSE(out[0].floor);
 
-  // A violation of monotonicity is pooled first (design.md sec. 5, isotonic regression), by hand:
+  // A violation of monotonicity is pooled first (docs/design.md, "Needed pilot episodes", isotonic regression), by hand:
   // fractions 0.1, 0.7, 0.5, 0.9, 1.0 pool (0.7, 0.5) -> 0.6, 0.6 (equal weights). Then the first
   // budget where the monotone curve reaches 0.8 is 300, from 0.6 at 100: again 100 * 3^(2/3).
   const auto pooled = counted({1, 7, 5, 9, 10});
@@ -90,7 +90,7 @@ TEST_CASE("answer: assurance crossing has the hand-computed closed form", "[answ
 
 TEST_CASE("answer: mean criterion on an exactly sampled curve c + a/n", "[answer]") {
   // Every pair has exactly e(n) = 0.01 + 1/n: e = 0.11, 0.04333, 0.02, 0.013333, 0.011.
-  // By hand (design.md sec. 5, interpolation in log n): target 0.015 lies between 100 (0.02) and
+  // By hand (docs/design.md, "Needed pilot episodes", interpolation in log n): target 0.015 lies between 100 (0.02) and
   // 300 (0.01333): t = (0.015 - 0.02) / (0.013333 - 0.02) = 0.75, n = 100 * 3^0.75.
   // Target 0.0105 is below e(1000): extrapolated on the fitted curve, which is exact here, so
   // n = a / (eps - c) = 1 / 0.0005 = 2000 (learning_curve.hpp, solve). Target 0.009 is below the
@@ -229,8 +229,8 @@ TEST_CASE("answer: infinite and missing values", "[answer]") {
 }
 
 TEST_CASE("answer: savings against pilot-only and the exchange rate", "[answer]") {
-  // pilot-only only at logged 0 (it ignores logged data); pooled at 0 and 1000. By hand (design.md
-  // sec. 5): pilot-only needs 300 (0.8 at 300 exactly); pooled at logged 0 needs 300 too, at 1000
+  // pilot-only only at logged 0 (it ignores logged data); pooled at 0 and 1000. By hand
+  // (docs/design.md, "Savings and exchange rate"): pilot-only needs 300 (0.8 at 300 exactly); pooled at logged 0 needs 300 too, at 1000
   // it needs 100: saved 200, exchange rate 200 / 1000 = 0.2; at logged 0 no exchange rate.
   auto rows = counted({0, 2, 5, 8, 10}, Strategy::pilot_only, 0);
   for (const auto& r : counted({0, 2, 5, 8, 10}, Strategy::pooled, 0)) rows.push_back(r);
@@ -255,7 +255,7 @@ TEST_CASE("answer: savings against pilot-only and the exchange rate", "[answer]"
 }
 
 TEST_CASE("answer: deterministic whatever the order of the records", "[answer]") {
-  // design.md sec. 6: results are bit-identical; the record order must not matter.
+  // docs/design.md, "Seeding and reproducibility": results are bit-identical; the record order must not matter.
   auto rows = counted({1, 3, 6, 8, 10}, Strategy::pilot_only, 0, 40);
   const auto settings = settings_for({Strategy::pilot_only}, {0});
   const auto a = compute_answers(rows, 0, settings, {query(0.5, 0.8)}, 11);
@@ -275,7 +275,7 @@ TEST_CASE("answer: deterministic whatever the order of the records", "[answer]")
 
 TEST_CASE("answer: bootstrap interval coverage on binomial successes", "[answer]") {
   // Known curve: a pair succeeds at budget n iff U <= p(n) = 1 - exp(-n/100), U ~ Uniform(0, 1) per
-  // pair (nested, as the data of design.md sec. 6), each pair its own environment draw (so the
+  // pair (nested, as the data of docs/design.md, "Seeding and reproducibility"), each pair its own environment draw (so the
   // two-stage bootstrap is the plain pair bootstrap). Two estimands:
   //  * the design's definition applied to the TRUE curve on this grid: p = 0.6321 at 100 and
   //    0.9502 at 300 bracket beta = 0.8, so n_grid = exp(log 100 + (0.8 - p(100)) / (p(300) -
@@ -514,7 +514,7 @@ TEST_CASE("answer: relative half-width", "[answer]") {
 }
 
 TEST_CASE("answer: speed of a full re-analysis", "[.][answer_perf]") {
-  // design brief: 3 strategies x 3 logged x 2 queries x 10 scenarios, 400 pairs, B = 1000, in seconds.
+  // size of a large re-analysis: 3 strategies x 3 logged x 2 queries x 10 scenarios, 400 pairs, B = 1000, in seconds.
   // Hidden (run with "[answer_perf]"); the data are noisy curves that mostly need extrapolation (worst case).
   const std::vector<Strategy> strategies{Strategy::pilot_only, Strategy::pooled, Strategy::regime_aware};
   const std::vector<int> logged{0, 100, 1000};

@@ -1,7 +1,7 @@
 // The headline causal test: logged actions chosen by a decision-maker who sees the hidden state are
 // confounded; pooling them with pilot data as if they were interventions recovers the observational
 // conditional p(o_1 | o_0, a_0), while the regime-aware fit (a latent decision rule on logged episodes,
-// design.md sec. 3) recovers the interventional p(o_1 | o_0, do(a_0)).
+// docs/design.md, "Strategies") recovers the interventional p(o_1 | o_0, do(a_0)).
 //
 // Problem (horizon 1, all numbers chosen here):
 //   hidden s in {0, 1}, p0 = (1/2, 1/2);
@@ -86,7 +86,7 @@ std::array<double, 4> cf_predictive(const Pomdp& model) {
 
 // The MAP objective of fit.hpp for horizon-1 data, computed here independently of forward_backward.cpp:
 //   sum_pilot log sum_z q0(z) qE(z,o0) sum_z' qT[a](z,z') qE(z',o1)
-// + sum_logged log sum_z q0(z) qE(z,o0) qA(z,a) sum_z' qT[a](z,z') qE(z',o1)      (design.md sec. 3)
+// + sum_logged log sum_z q0(z) qE(z,o0) qA(z,a) sum_z' qT[a](z,z') qE(z',o1)      (docs/design.md, "The latent model")
 // + prior * sum of log q over every entry of q0, qT, qE, qA                         (fit.hpp)
 double cf_objective(const Pomdp& q, const Matrix& qA, const Dataset& pilot, int n_pilot, const Dataset& logged,
                     int n_logged, double prior) {
@@ -141,7 +141,7 @@ TEST_CASE("confounding: pooled learns the observational conditional, regime-awar
   for (int c : cf_confounded) REQUIRE(std::abs(P.obs[static_cast<std::size_t>(c)] - P.itv[static_cast<std::size_t>(c)]) >= 0.2);
 
   // Data (fixed seeds): 20000 logged episodes; 5000 pilot episodes of which the first 500 are the
-  // "moderate" pilot set (nested, as in design.md sec. 6).
+  // "moderate" pilot set (nested, as in docs/design.md, "Seeding and reproducibility").
   Engine logged_rng(101), pilot_rng(202);
   const Dataset logged = simulate(env, Regime::logged, 20000, logged_rng);
   const Dataset pilot = simulate(env, Regime::pilot, 5000, pilot_rng);
@@ -213,7 +213,7 @@ TEST_CASE("confounding: pooled learns the observational conditional, regime-awar
 }
 
 TEST_CASE("confounding: regime-aware with the design's default EM settings reaches the MAP", "[confounding]") {
-  // Regression test: with design.md sec. 7's defaults (restarts 3, max_iterations 200, relative tolerance
+  // Regression test: with the original defaults (restarts 3, max_iterations 200, relative tolerance
   // 1e-6, prior 0.1) plain EM stopped ~15 nats below the objective of the true parameters, at a point whose
   // predictive for the confounded cell (o0, a0) = (1, 0) is the observational value; SQUAREM acceleration
   // (fit.cpp) reaches the MAP within the same settings.

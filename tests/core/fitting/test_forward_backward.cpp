@@ -97,7 +97,7 @@ Dataset fb_single(const std::vector<int>& obs, const std::vector<int>& act) {
 }
 
 // ---------------------------------------------------------------------------------------------
-// Brute force over every latent path z_0..z_H (design.md sec. 3, written out term by term).
+// Brute force over every latent path z_0..z_H (docs/design.md, "The latent model", written out term by term).
 
 // Joint probability of a path and the episode: q0(z0) qE(z0,o0) prod_t qT[a_t](z_t,z_{t+1}) qE(z_{t+1},o_{t+1}),
 // times prod_{t<H} qA(z_t, a_t) when `decision` is given.
@@ -414,8 +414,8 @@ TEST_CASE("forward-backward: one Baum-Welch step equals GHMM's re-estimation", "
 
 TEST_CASE("forward-backward: log-likelihood of both regimes equals brute force over latent paths",
           "[forward_backward]") {
-  // Reference: direct summation over all Z^(H+1) latent paths of the episode likelihoods of design.md
-  // sec. 3 (pilot: q0 qE prod qT qE; logged with a decision rule: also prod_{t<H} qA(z_t, a_t)).
+  // Reference: direct summation over all Z^(H+1) latent paths of the episode likelihoods of
+  // docs/design.md, "The latent model" (pilot: q0 qE prod qT qE; logged with a decision rule: also prod_{t<H} qA(z_t, a_t)).
   Engine rng(31337);
   int checked = 0;
   for (int Z : {2, 3})

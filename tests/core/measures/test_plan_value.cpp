@@ -176,7 +176,7 @@ TEST_CASE("rollouts use common random numbers", "[plan_value]") {
   rollout_plan_value(m, m, optimal, 4000, key, &a2);
   const PolicyValue vb = rollout_plan_value(m, wrong, from_wrong, 4000, key, &b);
   const PolicyValue vu = rollout_uniform_value(m, 4000, key, &u);
-  CHECK(a == a2);  // same key: identical episodes (design.md sec. 6)
+  CHECK(a == a2);  // same key: identical episodes (docs/design.md, "Seeding and reproducibility")
   // Paired differences under CRN have a smaller standard error than independent estimates would
   // (common practice: Var(X - Y) = Var X + Var Y - 2 Cov(X, Y), Cov > 0 under CRN).
   for (const auto* other : {&b, &u}) {

@@ -28,7 +28,7 @@ Pomdp unrelated_model(const Pomdp& truth, int Z, std::uint64_t seed) {
 }  // namespace
 
 TEST_CASE("normalised gap: 0 for V*, 1 for the uniform policy, none without room", "[return_gap]") {
-  // Definition of design.md sec. 4: (V* - V) / (V* - V_uniform).
+  // Definition of docs/design.md, "return_gap": (V* - V) / (V* - V_uniform).
   CHECK(*normalised_gap(3.0, 1.0, 3.0) == 0.0);
   CHECK(*normalised_gap(3.0, 1.0, 1.0) == 1.0);
   CHECK(*normalised_gap(3.0, 1.0, 2.5) == Approx(0.25));

@@ -1,4 +1,4 @@
-// Tests of one unit of work (src/core/running/unit.hpp, design.md sec. 6): determinism, nested data, and
+// Tests of one unit of work (src/core/running/unit.hpp, docs/design.md, "Seeding and reproducibility"): determinism, nested data, and
 // sizes at the edges.
 #include <catch2/catch.hpp>
 
@@ -94,7 +94,7 @@ void un_check_rows(const Study& st, const std::vector<RunRecord>& rows, int repl
 }  // namespace
 
 TEST_CASE("unit: run_unit is deterministic", "[unit]") {
-  // design.md sec. 6: every stream is seeded from (study seed, scenario, draw, replicate, purpose), so the
+  // docs/design.md, "Seeding and reproducibility": every stream is seeded from (study seed, scenario, draw, replicate, purpose), so the
   // same unit gives bit-identical rows (runs.csv is byte-identical across runs).
   const Study st = un_study(3, 2, 2, 4, 3);
   for (int replicate : {0, 1}) {
@@ -123,7 +123,7 @@ TEST_CASE("unit: run_unit is deterministic", "[unit]") {
 }
 
 TEST_CASE("unit: nested data — a smaller budget is a prefix of the larger one", "[unit]") {
-  // design.md sec. 6: pilot (and logged) data for a smaller budget are the first episodes of the
+  // docs/design.md, "Seeding and reproducibility": pilot (and logged) data for a smaller budget are the first episodes of the
   // largest budget's data.
   const Study st = un_study(3, 2, 3, 5, 3);
   const ScenarioSettings& s = st.scenarios[0].settings;
@@ -170,7 +170,7 @@ TEST_CASE("unit: nested data — a smaller budget is a prefix of the larger one"
 
 TEST_CASE("unit: one state, one action, one observation, horizon 1", "[unit]") {
   // With a single observation every predictive is the point mass on it, so model_kl must be exactly 0
-  // (design.md sec. 4, KL of identical distributions) and every log-likelihood is log 1 = 0.
+  // (docs/design.md, "model_kl", KL of identical distributions) and every log-likelihood is log 1 = 0.
   const Study st = un_study(1, 1, 1, 1, 1);
   const auto rows = un_run(st, 0);
   un_check_rows(st, rows, 0);
@@ -183,7 +183,7 @@ TEST_CASE("unit: one state, one action, one observation, horizon 1", "[unit]") {
 
 TEST_CASE("unit: one observation with several states and latent values still gives model_kl exactly 0", "[unit]") {
   // Same argument as above: the predictive of the only observation is 1 in every model, whatever the
-  // belief, so the KL is exactly 0 (design.md sec. 4), and a KL is never negative.
+  // belief, so the KL is exactly 0 (docs/design.md, "model_kl"), and a KL is never negative.
   // KNOWN FAILURE (reported, not fixed): model_kl.cpp computes the predictive as sum_s b(s) E(s, o) with a
   // belief b that sums to 1 only up to rounding (predict() after condition()), so the "certain" predictive
   // is 1 +- 1 ulp in the truth and in the fit, and model_kl comes out as +-1e-17, sometimes negative.

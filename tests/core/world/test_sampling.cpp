@@ -197,7 +197,7 @@ TEST_CASE("sampling: categorical_from_uniform follows its inverse-transform cont
 // Synthetic family.
 
 TEST_CASE("sampling: synthetic emissions have the stated form", "[sampling]") {
-  // design.md sec. 2: E(s, .) = (1 - noise) onehot(s mod |O|) + noise Dirichlet(1): row s puts at least
+  // docs/design.md, "The synthetic family": E(s, .) = (1 - noise) onehot(s mod |O|) + noise Dirichlet(1): row s puts at least
   // 1 - noise on s mod |O|, rows sum to 1; p0 and T[a] rows are probability vectors; r(o) in [0, 1).
   for (double noise : {0.0, 0.3, 1.0}) {
     INFO("noise=" << noise);
@@ -251,7 +251,7 @@ TEST_CASE("sampling: logging policy on a hand-solved two-state problem", "[sampl
   CHECK(Q(0, 1) == Approx(10.0).epsilon(1e-10));
   CHECK(Q(1, 0) == Approx(10.0).epsilon(1e-10));
   CHECK(Q(1, 1) == Approx(9.0).epsilon(1e-10));
-  // pi_log = privilege softmax(Q / temperature) + (1 - privilege)/|A| (design.md sec. 2); with a Q gap of 1
+  // pi_log = privilege softmax(Q / temperature) + (1 - privilege)/|A| (docs/design.md, "Logged regime"); with a Q gap of 1
   // and temperature 0.5 the preferred action has softmax weight e^2 / (1 + e^2).
   LoggingSettings ls;
   ls.privilege = 0.8;
@@ -267,7 +267,7 @@ TEST_CASE("sampling: logging policy on a hand-solved two-state problem", "[sampl
 
 TEST_CASE("sampling: logging policy rows match the formula with independently computed Q", "[sampling]") {
   // Q by the value iteration above (Sutton and Barto 2018 eq. 3.20, 3000 sweeps: error <= 0.9^3000 ~ 0);
-  // pi_log = privilege * softmax(Q / temperature) + (1 - privilege)/|A| (design.md sec. 2).
+  // pi_log = privilege * softmax(Q / temperature) + (1 - privilege)/|A| (docs/design.md, "Logged regime").
   Engine rng(2024);
   for (int A : {2, 3}) {
     Pomdp m;
