@@ -34,7 +34,7 @@ const std::vector<StudyKey>& study_keys() {
       {"environment.observation_noise", "number", "0.3", "in [0, 1]", K::number,
        "weight of the random (Dirichlet(1)) part of each emission row; the rest shows the state's own symbol"},
       {"environment.file", "text (path)", "none", "a readable model file, relative to the study file's folder",
-       K::none, "a given environment, read from a model file (docs/model-file.md); excludes the family keys"},
+       K::none, "a given environment, read from a model file ([model-file.md](model-file.md)); excludes the family keys"},
       {"environment.model", "mapping", "none", "a model in the model-file format", K::none,
        "a given environment written inline (the form `study.resolved.yaml` uses); excludes `file` and the family "
        "keys"},
