@@ -2,16 +2,24 @@
 // (Bengio and Frasconi, "Input-output HMMs for sequence processing", IEEE TNN 7(5), 1996;
 // scaling as in Rabiner, "A tutorial on hidden Markov models...", Proc. IEEE 77(2), 1989, sec. V.A).
 //
-// Per episode o_0, a_0, ..., a_{H-1}, o_H, with w_t(z) = qA(z, a_t) on logged steps t < H of a
-// regime-aware fit and 1 otherwise:
-//   alpha_0(z)     = q0(z) qE(z, o_0) w_0(z) / c_0
-//   alpha_{t+1}(z') = [sum_z alpha_t(z) qT[a_t](z, z')] qE(z', o_{t+1}) w_{t+1}(z') / c_{t+1}
-//   beta_H(z) = 1,  beta_t(z) = sum_z' qT[a_t](z, z') qE(z', o_{t+1}) w_{t+1}(z') beta_{t+1}(z') / c_{t+1}
+// Per episode o_0, a_0, ..., a_{L-1}, o_L (L = length(i) <= H), with e_t(z) = qE(z, o_t) w_t(z) and
+// w_t(z) = qA(z, a_t) on logged steps t < L of a regime-aware fit and 1 otherwise:
+//   alpha_0(z)      = q0(z) e_0(z) / c_0
+//   alpha_{t+1}(z') = [sum_z alpha_t(z) qT[a_t](z, z')] e_{t+1}(z') / c_{t+1}
+//   beta_L(z) = 1,  u_{t+1}(z') = e_{t+1}(z') beta_{t+1}(z') / c_{t+1},  beta_t(z) = sum_z' qT[a_t](z, z') u_{t+1}(z')
 //   log p(episode) = sum_t log c_t
 //   gamma_t(z) = alpha_t(z) beta_t(z)
-//   xi_t(z, z') = alpha_t(z) qT[a_t](z, z') qE(z', o_{t+1}) w_{t+1}(z') beta_{t+1}(z') / c_{t+1}
+//   xi_t(z, z') = alpha_t(z) qT[a_t](z, z') u_{t+1}(z')
 // The E-step accumulates expected counts; the M-step (maximise) is the MAP update under a
 // symmetric Dirichlet pseudo-count `prior` on every row: q(j | i) = (N(i, j) + prior) / sum_j (...).
+//
+// Batched kernel (issue 11): kLanes episodes of one view run at once, one per vector lane
+// (structure of arrays, lane index fastest). Every lane performs exactly the sequence of IEEE
+// operations of one episode run alone: the action is selected by multiplying with 0/1 masks
+// (exact) and sums start from +0 and run in a fixed order (z ascending within a ascending); lanes
+// past an episode's end are masked out. kLanes is fixed, not the vector width, so the order in
+// which counts are summed over lanes does not depend on the CPU: the SSE2, AVX2 and AVX-512
+// builds of the kernel give the same bits (tests/core/fitting/test_forward_backward.cpp).
 #pragma once
 #include <vector>
 
@@ -31,13 +39,24 @@ struct ExpectedCounts {
   void reset(int latent, int actions, int observations);
 };
 
+// Which compiled build of the batched kernel runs: all give identical results; `best` is the
+// widest one this CPU supports (chosen once, at first use).
+enum class KernelPath { baseline, avx2, avx512, best };
+// Whether this CPU (and this compiler's build) can run `path`.
+bool kernel_path_supported(KernelPath path);
+// The path `best` resolves to here.
+KernelPath best_kernel_path();
+const char* kernel_path_name(KernelPath path);
+
 // Reusable workspace for one model: all buffers are sized once, so accumulate() does no
 // allocation. `decision` (Z x A) may be null: then no episode multiplies a decision rule.
 class ForwardBackward {
  public:
+  static constexpr int kLanes = 8;  // episodes per batch (fixed: see the file comment)
+
   ForwardBackward(int latent, int actions, int observations, int max_horizon);
 
-  // Loads the parameters (precomputes M[a][o](z, z') = qT[a](z, z') qE(z', o)).
+  // Loads the parameters.
   void load(const Pomdp& model, const Matrix* decision);
 
   // E-step over the episodes of `view`; logged episodes multiply the decision rule when one was
@@ -47,20 +66,30 @@ class ForwardBackward {
   // Log-likelihood only (forward pass).
   double log_likelihood(const DataView& view);
 
+  // For tests and benchmarks: run a given build of the kernel (must be supported).
+  void set_kernel_path(KernelPath path);
+  KernelPath kernel_path() const { return path_; }
+
+  struct Block;  // one batch of kLanes episodes (defined in forward_backward.cpp)
+
  private:
-  template <int ZC>
-  double run_episodes(const Dataset& d, int count, bool logged, ExpectedCounts& counts);
-  template <int ZC>
-  double forward(const std::int32_t* o, const std::int32_t* a, int horizon, bool logged);
-  template <int ZC>
-  void backward_and_count(const std::int32_t* o, const std::int32_t* a, int horizon, bool logged, ExpectedCounts& c);
+  double run(const DataView& view, bool counts);
 
   int Z_, A_, O_, H_;
-  std::vector<double> q0_, qE_, qA_, M_;  // M_: [a][o][z][z'] = qT[a](z, z') qE(z', o)
+  KernelPath path_;
+  std::vector<double> q0_, qT_, qE_, qA_;  // qT_: [a][z][z'], qE_: [z][o], qA_: [z][a]
   bool has_decision_ = false;
-  std::vector<double> alpha_, scale_, beta_, next_, tmp_;  // alpha_: (H+1) x Z
-  std::vector<double> outer_;                              // [a][o][z][z'] accumulated xi / M
-  std::vector<double> gamma_E_, gamma_A_;                  // [o][z] and [a][z] accumulated gamma
+  // Per batch (lane index fastest): alpha [t][z][l], e [t][z][l], scale and 1/scale [t][l],
+  // forward action masks [t][a][l] (a step past the end selects action 0), count masks [t][a][l]
+  // (0 past the end), observation masks [t][o][l] (0 past the end), lane liveness [l], lengths.
+  std::vector<double> alpha_, e_, scale_, inv_, fmask_, cmask_, omask_, idle_, live_, work_;
+  std::vector<int> len_;
+  std::vector<double> ob_, ac_;  // o_t and a_t [t][l], -1 past the end
+  // Per call, summed over batches, per lane: X [a][z][z'][l] = sum alpha_t(z) u_{t+1}(z'),
+  // gamma by observation [o][z][l], by action [a][z][l], initial [z][l].
+  std::vector<double> X_, gE_, gA_, g0_;
+  std::vector<double> ua_;  // per batch: u_{t+1} masked by a_t, [t][a][z'][l]
+  std::vector<double> ll_;  // per-lane log-likelihood of the current batch
 };
 
 // MAP M-step: writes the new q0, qT, qE (and qA when decision is not null) into model/decision.

@@ -13,6 +13,7 @@
 #include <boost/random/uniform_int_distribution.hpp>
 #include <cmath>
 #include <cstdlib>
+#include <cstring>
 #include <limits>
 #include <string>
 #include <vector>
@@ -369,10 +370,11 @@ TEST_CASE("forward-backward: one Baum-Welch step equals GHMM's re-estimation", "
     int Z, O, H1, n1, H2, n2;
   };
   // Two datasets per case so that GHMM sees sequences of two different lengths.
-  // Latent sizes 1..8 (the E-step may specialise on small sizes; every branch is compared).
+  // Latent sizes 1..8 (the E-step may specialise on small sizes; every branch is compared), and 10
+  // and 12 (the general kernel); episode counts that fill 8 lanes partly (1, 3, 5, 9, 11, 17, ...).
   const Case cases[] = {{2, 2, 3, 20, 7, 5},  {3, 4, 10, 15, 1, 30}, {4, 3, 25, 8, 60, 2}, {2, 5, 100, 3, 4, 10},
                         {1, 3, 4, 5, 2, 5},   {5, 4, 6, 10, 12, 4},  {6, 3, 8, 6, 3, 6},   {7, 5, 5, 8, 9, 3},
-                        {8, 4, 10, 6, 2, 5}};
+                        {8, 4, 10, 6, 2, 5},  {10, 3, 6, 9, 4, 11}, {12, 5, 3, 17, 8, 1}};
   Engine rng(99);
   for (const Case& c : cases) {
     INFO("Z=" << c.Z << " O=" << c.O);
@@ -537,6 +539,107 @@ TEST_CASE("forward-backward: episodes that stop early equal brute force over the
     CHECK(ref.emissions.sum() == Approx(15.0));
     if (regime == Regime::logged) CHECK(ref.decision.sum() == Approx(10.0));
   }
+}
+
+TEST_CASE("forward-backward: batches of mixed lengths and partly filled lanes equal brute force",
+          "[forward_backward]") {
+  // The kernel runs 8 episodes at once (ForwardBackward::kLanes); a view whose count is not a
+  // multiple of 8 leaves lanes empty, and episodes of one batch may stop at different steps.
+  // Reference: the brute-force enumeration over latent paths above (Rabiner 1989 eqs. 37-40), per
+  // episode on its own length. Latent sizes 2, 4 and 7 (compiled sizes) and 9 (the general kernel);
+  // 1, 8, 13 and 19 episodes; lengths drawn from 0..H.
+  struct Case {
+    int Z, O, H, n;
+  };
+  const Case cases[] = {{2, 3, 4, 1}, {2, 2, 5, 19}, {4, 3, 3, 13}, {4, 2, 4, 8}, {7, 2, 2, 13}, {9, 3, 3, 13}};
+  Engine rng(2026);
+  const int A = 3;
+  for (const Case& k : cases) {
+    const Pomdp m = fb_random_model(k.Z, A, k.O, k.H, rng);
+    const Matrix D = fb_random_decision(k.Z, A, rng);
+    Dataset d = fb_random_dataset(k.n, k.H, A, k.O, rng);
+    boost::random::uniform_int_distribution<int> ul(0, k.H);
+    d.lengths.resize(static_cast<std::size_t>(k.n));
+    for (auto& L : d.lengths) L = ul(rng);
+    if (k.n > 1) d.lengths[1] = k.H;  // at least one full-length episode, and one of length 0
+    if (k.n > 2) d.lengths[2] = 0;
+    for (Regime regime : {Regime::pilot, Regime::logged}) {
+      INFO("Z=" << k.Z << " O=" << k.O << " H=" << k.H << " n=" << k.n << (regime == Regime::logged ? " logged" : " pilot"));
+      ForwardBackward fb(k.Z, A, k.O, k.H);
+      fb.load(m, &D);
+      ExpectedCounts c;
+      c.reset(k.Z, A, k.O);
+      const double ll = fb.accumulate({&d, d.count, regime}, c);
+      const ExpectedCounts ref = fb_brute_counts(m, regime == Regime::logged ? &D : nullptr, d);
+      CHECK(ll == Approx(ref.loglik).epsilon(1e-12));
+      CHECK(fb.log_likelihood({&d, d.count, regime}) == Approx(ref.loglik).epsilon(1e-12));
+      CHECK(fb_max_abs_diff(c.initial, ref.initial) <= 1e-12);
+      for (int a = 0; a < A; ++a)
+        CHECK(fb_max_abs_diff(c.transitions[static_cast<std::size_t>(a)], ref.transitions[static_cast<std::size_t>(a)]) <= 1e-12);
+      CHECK(fb_max_abs_diff(c.emissions, ref.emissions) <= 1e-12);
+      CHECK(fb_max_abs_diff(c.decision, ref.decision) <= 1e-12);
+      CHECK(ref.initial.sum() == Approx(k.n));
+      CHECK(ref.emissions.sum() == Approx(d.observations_in(k.n)));
+    }
+  }
+}
+
+TEST_CASE("forward-backward: every compiled build of the kernel gives the same bits", "[forward_backward]") {
+  // The kernel is compiled for the x86-64 baseline (SSE2), AVX2 and AVX-512 and the widest one this
+  // CPU supports runs. IEEE 754 operations are correctly rounded, so the same operations on the
+  // same operands in the same order give the same bits whatever the vector width (IEEE Std
+  // 754-2008, clause 11, "Reproducible floating-point results"); this checks that the builds do
+  // perform the same operations (no contraction into FMA, no reordered sums): every count and the
+  // log-likelihood must equal the baseline's bit for bit. Paths this CPU lacks are reported, not run.
+  struct Case {
+    int Z, A, O, H, n;
+  };
+  const Case cases[] = {{1, 2, 3, 5, 9},   {2, 2, 2, 8, 37},  {3, 3, 4, 6, 8},  {4, 2, 2, 8, 101},
+                        {5, 3, 3, 7, 13},  {6, 2, 5, 9, 21},  {8, 3, 6, 20, 50}, {11, 3, 4, 5, 19}};
+  Engine rng(11);
+  int compared = 0;
+  for (const Case& k : cases) {
+    const Pomdp m = fb_random_model(k.Z, k.A, k.O, k.H, rng);
+    const Matrix D = fb_random_decision(k.Z, k.A, rng);
+    Dataset d = fb_random_dataset(k.n, k.H, k.A, k.O, rng);
+    boost::random::uniform_int_distribution<int> ul(0, k.H);
+    d.lengths.resize(static_cast<std::size_t>(k.n));
+    for (int i = 0; i < k.n; ++i) d.lengths[static_cast<std::size_t>(i)] = i % 3 == 0 ? ul(rng) : k.H;
+    for (Regime regime : {Regime::pilot, Regime::logged}) {
+      auto run = [&](KernelPath path, ExpectedCounts& c) {
+        ForwardBackward fb(k.Z, k.A, k.O, k.H);
+        fb.set_kernel_path(path);
+        fb.load(m, &D);
+        c.reset(k.Z, k.A, k.O);
+        fb.accumulate({&d, d.count, regime}, c);
+        fb.accumulate({&d, k.n / 2, regime}, c);  // a second call adds to the same counts
+        return fb.log_likelihood({&d, d.count, regime});
+      };
+      ExpectedCounts base;
+      const double base_ll = run(KernelPath::baseline, base);
+      for (KernelPath path : {KernelPath::avx2, KernelPath::avx512}) {
+        INFO("Z=" << k.Z << " A=" << k.A << " n=" << k.n << " path " << kernel_path_name(path)
+                  << (regime == Regime::logged ? " logged" : " pilot"));
+        if (!kernel_path_supported(path)) {
+          WARN("kernel path " << kernel_path_name(path) << " not supported by this CPU: not compared");
+          continue;
+        }
+        ExpectedCounts c;
+        const double ll = run(path, c);
+        auto same = [](const Matrix& x, const Matrix& y) {
+          return x.size() == y.size() && std::memcmp(x.data(), y.data(), sizeof(double) * static_cast<std::size_t>(x.size())) == 0;
+        };
+        CHECK(std::memcmp(&ll, &base_ll, sizeof ll) == 0);
+        CHECK(std::memcmp(&c.loglik, &base.loglik, sizeof ll) == 0);
+        CHECK(same(c.initial, base.initial));
+        for (int a = 0; a < k.A; ++a) CHECK(same(c.transitions[static_cast<std::size_t>(a)], base.transitions[static_cast<std::size_t>(a)]));
+        CHECK(same(c.emissions, base.emissions));
+        CHECK(same(c.decision, base.decision));
+        ++compared;
+      }
+    }
+  }
+  if (kernel_path_supported(KernelPath::avx2)) CHECK(compared >= 16);
 }
 
 TEST_CASE("forward-backward: maximise is the Dirichlet MAP update of brute-force counts", "[forward_backward]") {
