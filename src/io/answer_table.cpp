@@ -4,6 +4,7 @@
 #include "io/atomic_file.hpp"
 
 #include "io/csv.hpp"
+#include "io/records_answer.hpp"
 #include "io/text_escape.hpp"
 
 #include <fmt/format.h>
@@ -420,6 +421,7 @@ std::string format_answer_table(const std::vector<AnswerRow>& rows, const Study*
     s += "\nworst case over the swept scenarios (the pilot budget to plan for when the swept quantity is unknown):\n";
     s += aligned(w, wr);
   }
+  if (study != nullptr) s += records_answer_text(*study, rows, false);  // studies from records (issue 9)
   return s;
 }
 
@@ -431,7 +433,8 @@ void write_answer_files(const std::filesystem::path& dir, const Study& study, co
   std::vector<std::string> labels;
   for (const auto& sc : study.scenarios) labels.push_back(sc.label);
   write_answer_csv(dir / "answer.csv", rows);
-  write_answer_md(dir / "answer.md", study.name, labels, rows);
+  // A study from records adds its section (records_answer.hpp) to the page.
+  write_file_atomically(dir / "answer.md", format_answer_md(study.name, labels, rows) + records_answer_text(study, rows, true));
 }
 
 }  // namespace dobudget::io

@@ -318,6 +318,17 @@ std::vector<std::pair<std::string, std::string>> settings_rows(const ScenarioSet
     const auto& m = e.given->model;
     r.emplace_back("environment.model",
                    fmt::format("given model: {} states, {} actions, {} observations", m.states, m.actions, m.observations));
+  } else if (e.records) {  // plausible worlds from the team's records (issue 9); the file name is user text
+    const RecordsSettings& rs = *e.records;
+    r.emplace_back("environment.data",
+                   fmt::format("records {}: {} logged, {} pilot episodes (pilot ones count as already run)",
+                               markdown_text(std::filesystem::path(rs.data).filename().string()), rs.logged_episodes,
+                               rs.pilot_episodes));
+    r.emplace_back("environment.latent_states",
+                   rs.latent_states > 0 ? std::to_string(rs.latent_states) : fmt::format("auto (chose {})", rs.chosen_latent_states));
+    r.emplace_back("environment.prior_concentration", text_number(rs.concentration));
+    r.emplace_back("environment.actions", std::to_string(e.family.actions));
+    r.emplace_back("environment.observations", std::to_string(e.family.observations));
   } else {
     r.emplace_back("environment.states", std::to_string(e.family.states));
     r.emplace_back("environment.actions", std::to_string(e.family.actions));

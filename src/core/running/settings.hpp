@@ -3,6 +3,7 @@
 #pragma once
 #include <cstdint>
 #include <map>
+#include <memory>
 #include <optional>
 #include <string>
 #include <vector>
@@ -21,9 +22,28 @@ struct SyntheticFamily {
   double observation_noise = 0.3;
 };
 
+struct RecordsPosterior;  // core/world/posterior_world.hpp
+
+// Plausible worlds from the team's records (issue 9): environment: { data: ..., codebook: ... }.
+// The io layer reads the records and fits them (io/records_study.hpp); each environment draw is
+// then a world drawn from `posterior` (posterior_world.hpp) with its own decision rule as logger.
+struct RecordsSettings {
+  std::string data, codebook;  // the files as resolved by the reader (codebook may be empty)
+  std::string digest;          // of the bytes of both files: a changed record makes another study
+  int logged_episodes = 0, pilot_episodes = 0;  // in the records (pilot ones count as already run)
+  int longest_episode = 0;                      // actions of the longest episode
+  int latent_states = 0;                        // 0: auto (model_selection.hpp)
+  int chosen_latent_states = 0;                 // the fit's size, once known (0: not fitted yet)
+  bool fit_follows = false;  // fit.latent_states was not written: it becomes the records' latent size
+  bool rewards = false;      // the codebook gives rewards (return_gap needs them)
+  double concentration = 1.0;                   // prior_concentration (posterior_world.hpp)
+  std::shared_ptr<const RecordsPosterior> posterior;  // the fit; null until the records are fitted
+};
+
 struct EnvironmentSettings {
-  // Either a user-given model (then draws == 1) or the synthetic family.
+  // Either a user-given model (then draws == 1), the team's records, or the synthetic family.
   std::optional<Environment> given;  // logging_policy may be empty: then built from `logging`
+  std::optional<RecordsSettings> records;  // family holds its sizes (states: the latent size, or the largest auto tries)
   SyntheticFamily family;
   int horizon = 8;
   double discount = 1.0;

@@ -15,6 +15,12 @@ namespace dobudget {
 // is a one-hot vector at a uniformly chosen index, which is returned then.
 void sample_dirichlet(Engine& rng, double alpha, int k, double* out);
 
+// Dirichlet(alpha_0, ..., alpha_{k-1}) written to out: x_i = g_i / sum_j g_j with
+// g_i ~ Gamma(alpha_i, 1) (same reference). Every alpha_i must be positive. When every g_i
+// underflows to 0 (tiny alphas), the limit of Dirichlet(c alpha) as c -> 0 is returned: a one-hot
+// vector at index i with probability alpha_i / sum_j alpha_j.
+void sample_dirichlet(Engine& rng, const double* alpha, int k, double* out);
+
 // Index i with probability p[i] (p sums to 1): inverse transform on one uniform(0,1) draw.
 int sample_categorical(Engine& rng, const double* p, int k);
 

@@ -1,7 +1,10 @@
 #include "core/world/synthetic.hpp"
 
 #include "core/world/logging_policy.hpp"
+#include "core/world/posterior_world.hpp"
 #include "core/world/sampling.hpp"
+
+#include <stdexcept>
 
 namespace dobudget {
 
@@ -33,6 +36,17 @@ Environment make_environment(const ScenarioSettings& s, const StreamKey& key) {
   Environment env;
   if (s.environment.given) {
     env = *s.environment.given;
+    env.model.horizon = s.environment.horizon;
+    env.model.discount = s.environment.discount;
+  } else if (s.environment.records) {
+    // A plausible world given the team's records (posterior_world.hpp), from the environment stream
+    // of the draw, with its own decision rule as the logger.
+    const RecordsSettings& r = *s.environment.records;
+    if (!r.posterior) throw std::logic_error("make_environment: the records have not been fitted (io/records_study.hpp)");
+    StreamKey k = key;
+    k.replicate = 0;
+    Engine rng = make_engine(k, Purpose::environment);
+    env = draw_plausible_world(*r.posterior, r.concentration, rng);
     env.model.horizon = s.environment.horizon;
     env.model.discount = s.environment.discount;
   } else {

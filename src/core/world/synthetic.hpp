@@ -13,7 +13,8 @@ namespace dobudget {
 Pomdp draw_pomdp(const SyntheticFamily& family, int horizon, double discount, Engine& rng);
 
 // The environment of draw `key.draw` of a scenario: the given model (its logging policy, or one
-// built from `logging`) or a synthetic draw, with the privileged logger attached.
+// built from `logging`), a plausible world given the records (its own decision rule as logger;
+// the records must have been fitted), or a synthetic draw, with the privileged logger attached.
 Environment make_environment(const ScenarioSettings& s, const StreamKey& key);
 
 }  // namespace dobudget

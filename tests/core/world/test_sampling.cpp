@@ -138,6 +138,49 @@ TEST_CASE("sampling: Dirichlet with tiny alpha still returns a probability vecto
   }
 }
 
+TEST_CASE("sampling: Dirichlet with unequal alphas has the closed-form mean and variance", "[sampling]") {
+  // Kotz, Balakrishnan and Johnson 2000, ch. 49: with a0 = sum_j alpha_j, component j has mean
+  // alpha_j / a0 and variance alpha_j (a0 - alpha_j) / (a0^2 (a0 + 1)). Tolerances as above (5 standard
+  // errors; the variance's from the sample's fourth central moment, *common practice*).
+  const std::vector<double> alpha{2.0, 0.5, 1.0, 30.0};
+  const double a0 = 33.5;
+  const long n = 20000;
+  Engine rng(77);
+  std::vector<double> x(alpha.size());
+  std::vector<std::vector<double>> draws(alpha.size(), std::vector<double>(static_cast<std::size_t>(n)));
+  for (long i = 0; i < n; ++i) {
+    sample_dirichlet(rng, alpha.data(), static_cast<int>(alpha.size()), x.data());
+    double s = 0.0;
+    for (std::size_t j = 0; j < alpha.size(); ++j) {
+      s += x[j];
+      draws[j][static_cast<std::size_t>(i)] = x[j];
+    }
+    REQUIRE(std::abs(s - 1.0) <= 1e-12);
+  }
+  for (std::size_t j = 0; j < alpha.size(); ++j) {
+    const double mean = alpha[j] / a0, var = alpha[j] * (a0 - alpha[j]) / (a0 * a0 * (a0 + 1.0));
+    double m1 = 0.0;
+    for (double v : draws[j]) m1 += v;
+    m1 /= static_cast<double>(n);
+    double m2 = 0.0, m4 = 0.0;
+    for (double v : draws[j]) {
+      m2 += (v - m1) * (v - m1);
+      m4 += std::pow(v - m1, 4);
+    }
+    const double s2 = m2 / static_cast<double>(n - 1);
+    m4 /= static_cast<double>(n);
+    INFO("component " << j << ": mean " << m1 << " (want " << mean << "), variance " << s2 << " (want " << var << ")");
+    CHECK(std::abs(m1 - mean) <= 5.0 * std::sqrt(var / static_cast<double>(n)));
+    CHECK(std::abs(s2 - var) <= 5.0 * std::sqrt((m4 - s2 * s2) / static_cast<double>(n)));
+  }
+  // Alphas so small that every Gamma draw underflows: the limit, a one-hot vector.
+  const std::vector<double> tiny{1e-300, 2e-300, 1e-300};
+  for (int i = 0; i < 50; ++i) {
+    sample_dirichlet(rng, tiny.data(), 3, x.data());
+    CHECK(x[0] + x[1] + x[2] == 1.0);
+  }
+}
+
 // =============================================================================================
 // Categorical.
 
