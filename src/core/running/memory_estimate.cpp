@@ -3,6 +3,7 @@
 
 #include <algorithm>
 
+#include "core/fitting/forward_backward.hpp"
 #include "core/running/run_record.hpp"
 #include "core/running/scenario_sizes.hpp"
 #include "core/running/unit.hpp"
@@ -40,8 +41,14 @@ std::vector<MemoryPart> unit_memory(const ScenarioSettings& s) {
     parts.push_back({MemoryPartId::evaluation_histories,
                      T * (2.0 * H + 1.0) * int_bytes + 3.0 * T * (H + 1.0) * O * double_bytes,
                      {{Driver::trajectories, T}, {Driver::horizon, H}, {Driver::observations, O}}});
+  // The forward-backward workspace (forward_backward.hpp): per lane of a batch, (H + 1)(2Z + 3 + O)
+  // (alpha, e, scale, 1/scale, o_t, observation masks), H(2A + 2 + AZ) (action masks, idle, a_t, u
+  // by action) and (2A + 3)Z + AZ^2 + OZ + AZ + Z + 1 (work, transition and gamma sums, liveness).
+  const double lanes = static_cast<double>(ForwardBackward::kLanes);
+  const double fb_doubles = lanes * ((H + 1.0) * (2.0 * Z + 3.0 + O) + H * (2.0 * A + 2.0 + A * Z) +
+                                     (2.0 * A + 3.0) * Z + A * Z * Z + O * Z + A * Z + Z + 1.0);
   parts.push_back({MemoryPartId::model_fit,
-                   15.0 * n * double_bytes + 2.0 * A * O * Z * Z * double_bytes + (H + 1.0) * (Z + 1.0) * double_bytes,
+                   15.0 * n * double_bytes + fb_doubles * double_bytes,
                    {{Driver::latent_states, Z}, {Driver::actions, A}, {Driver::observations, O}, {Driver::horizon, H}}});
   parts.push_back({MemoryPartId::fitted_models_kept, F * n * double_bytes,
                    {{Driver::latent_states, Z},

@@ -10,11 +10,11 @@
 //   datasets         (P + L) (2H + 1) x 4                       int32 observations and actions
 //   evaluation       T (2H + 1) x 4 + 3 T (H + 1) O x 8          histories, true predictives and their
 //                                                                logs, one fitted model's predictives
-//   fit              15 n x 8 + 2 A O Z^2 x 8 + (H + 1)(Z + 1) x 8   n = Z + A Z^2 + Z O + Z A parameters:
-//                                                                SQUAREM's 3 counts, 6 packed vectors and
-//                                                                about 5 parameter copies (15 rounds up
-//                                                                14); forward-backward's M and xi tables
-//                                                                and its alpha buffer
+//   fit              15 n x 8 + 8 x 8 x [(H + 1)(2Z + 3 + O)         n = Z + A Z^2 + Z O + Z A parameters:
+//                    + H (2A + 2 + AZ) + (2A + 3) Z + A Z^2      SQUAREM's 3 counts, 6 packed vectors and
+//                    + O Z + A Z + Z + 1]                        about 5 parameter copies (15 rounds up
+//                                                                14); forward-backward's workspace for a
+//                                                                batch of 8 episodes (memory_estimate.cpp)
 //   fits kept        F n x 8                                     every fitted model of the unit
 //   planner          plan_bytes(Z) + 3 R x 8                     the fitted model's plan; the true and
 //                                                                fitted plans' rollout returns
