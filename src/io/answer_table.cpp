@@ -434,4 +434,7 @@ void write_answer_files(const std::filesystem::path& dir, const Study& study, co
   write_answer_md(dir / "answer.md", study.name, labels, rows);
 }
 
+std::string needed_text(const AnswerRow& row) { return human_needed(row); }
+std::string interval_text(const AnswerRow& row) { return human_interval(row); }
+
 }  // namespace dobudget::io
