@@ -36,8 +36,10 @@ std::pair<Measure, double> parse_target(const std::string& text) {
   return {*m, v};
 }
 
+}  // namespace
+
 // The overrides the options ask for; BadInput for any bad value, before anything is read.
-AnswerOverrides overrides(const AnswerArgs& args) {
+AnswerOverrides answer_overrides(const AnswerArgs& args) {
   AnswerOverrides ov;
   for (const auto& t : args.targets) {
     const auto [m, v] = parse_target(t);
@@ -54,10 +56,17 @@ AnswerOverrides overrides(const AnswerArgs& args) {
   return ov;
 }
 
-}  // namespace
+void check_targets_measured(const Study& study, const AnswerOverrides& ov) {
+  for (const auto& [m, t] : ov.targets) {
+    bool measured = false;
+    for (const auto& sc : study.scenarios)
+      for (Measure k : sc.settings.measures) measured = measured || k == m;
+    if (!measured) throw BadInput(fmt::format("--target {}: this study did not measure {}", name(m), name(m)));
+  }
+}
 
 int answer_command(const AnswerArgs& args) {
-  const AnswerOverrides ov = overrides(args);
+  const AnswerOverrides ov = answer_overrides(args);
   const std::string& dir_text = args.dir;
   const std::filesystem::path dir(dir_text);
   if (!std::filesystem::exists(dir / "study.resolved.yaml"))
@@ -66,12 +75,7 @@ int answer_command(const AnswerArgs& args) {
     throw BadInput(dir_text + " has no runs.csv yet: finish the run with `dobudget plan` (or `merge` its shards) first");
   const io::FinishedRun run = io::load_finished_run(dir);  // study hash and every row checked
   const Study& study = run.study;
-  for (const auto& [m, t] : ov.targets) {
-    bool measured = false;
-    for (const auto& sc : study.scenarios)
-      for (Measure k : sc.settings.measures) measured = measured || k == m;
-    if (!measured) throw BadInput(fmt::format("--target {}: this study did not measure {}", name(m), name(m)));
-  }
+  check_targets_measured(study, ov);
   const auto& rows = run.rows;
   const auto answers = compute_study_answers(study, rows, ov);
   io::write_answer_files(dir, study, answers);

@@ -6,6 +6,9 @@
 #include <string>
 #include <vector>
 
+#include "core/answer/answer.hpp"
+#include "core/running/settings.hpp"
+
 namespace dobudget::cli {
 
 // The caution shown by --help, after results and in answer.md.
@@ -40,6 +43,10 @@ struct AnswerArgs {
   std::string bootstrap;             // empty: the default
 };
 int answer_command(const AnswerArgs& args);
+// The answer options as overrides (answer_command.cpp); BadInput naming the option for a bad value.
+AnswerOverrides answer_overrides(const AnswerArgs& args);
+// BadInput when a --target names a measure that no scenario of `study` measured.
+void check_targets_measured(const Study& study, const AnswerOverrides& overrides);
 
 struct MergeArgs {
   std::vector<std::string> dirs;  // run directories: the shards of one study
@@ -47,8 +54,14 @@ struct MergeArgs {
 };
 int merge_command(const MergeArgs& args);
 
-// Figures (gnuplot) and a report page in DIR/report/, from a finished run directory.
-int report_command(const std::string& dir);
+// Figures (gnuplot) and a report page in DIR/report/, from a finished run directory. --target and
+// --assurance are read as `answer` reads them (answer_overrides).
+struct ReportArgs {
+  std::string dir;
+  std::vector<std::string> targets;  // "measure=value", at most one per measure
+  std::string assurance;             // empty: the study's
+};
+int report_command(const ReportArgs& args);
 
 // A reference page generated from the program's tables, to stdout ("study-file": docs/study-file.md).
 int reference_command(const std::string& page);

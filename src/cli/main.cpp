@@ -73,9 +73,15 @@ int main(int argc, char** argv) {
   merge->add_option("--out", merge_args.out, "The complete run directory to write (new, empty, or of this study)")
       ->required();
 
-  std::string report_dir;
-  auto* report = app.add_subcommand("report", "Figures (gnuplot) and a report page, DIR/report/report.md, from a finished run");
-  report->add_option("dir", report_dir, "Run directory")->required();
+  ReportArgs report_args;
+  auto* report = app.add_subcommand(
+      "report", "Figures (gnuplot: PNG, PDF, SVG), DIR/report/report.md, report.html and methods.txt, from a finished run");
+  report->add_option("dir", report_args.dir, "Run directory")->required();
+  report->add_option("--target", report_args.targets,
+                     "MEASURE=VALUE with VALUE > 0, as in answer (the figures of needed pilot episodes centre on it)")
+      ->type_name("MEASURE=VALUE");
+  report->add_option("--assurance", report_args.assurance, "Fraction of (draw, replicate) pairs that must meet the target, in (0, 1), as in answer")
+      ->type_name("B");
 
   std::string reference_page;
   auto* reference = app.add_subcommand("reference", "Print a reference page generated from the program's tables");
@@ -99,7 +105,7 @@ int main(int argc, char** argv) {
     if (*draw) return draw_command(study_file, out);
     if (*answer) return answer_command(answer_args);
     if (*merge) return merge_command(merge_args);
-    if (*report) return report_command(report_dir);
+    if (*report) return report_command(report_args);
     if (*reference) return reference_command(reference_page);
   } catch (const io::InputError& e) {
     std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());

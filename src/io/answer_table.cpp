@@ -437,4 +437,7 @@ void write_answer_files(const std::filesystem::path& dir, const Study& study, co
   write_file_atomically(dir / "answer.md", format_answer_md(study.name, labels, rows) + records_answer_text(study, rows, true));
 }
 
+std::string needed_text(const AnswerRow& row) { return human_needed(row); }
+std::string interval_text(const AnswerRow& row) { return human_interval(row); }
+
 }  // namespace dobudget::io

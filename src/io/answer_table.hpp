@@ -72,6 +72,12 @@ std::vector<AnswerRow> worst_case_over_scenarios(const std::vector<AnswerRow>& r
 
 namespace dobudget::io {
 
+// The needed pilot budget and the interval as the readable tables show them (rounded up to whole
+// episodes; "<= n" below the smallest simulated budget, "inf", "> largest budget"), for the
+// report's methods paragraph.
+std::string needed_text(const AnswerRow& row);
+std::string interval_text(const AnswerRow& row);
+
 // answer.csv and answer.md of a run directory, for every scenario of `study`.
 void write_answer_files(const std::filesystem::path& dir, const Study& study, const std::vector<AnswerRow>& rows);
 

@@ -8,15 +8,20 @@
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
+#include <iterator>
+#include <limits>
 #include <map>
 #include <sstream>
 #include <system_error>
+#include <tuple>
 #include <utility>
 
 #include "io/answer_table.hpp"
 #include "io/atomic_file.hpp"
+#include "io/base64.hpp"
 #include "io/child_process.hpp"
 #include "io/finished_run.hpp"
+#include "io/methods_text.hpp"
 #include "io/runs_table.hpp"
 #include "io/study_file.hpp"
 #include "io/text_escape.hpp"
@@ -145,20 +150,28 @@ std::string title_comment(std::string_view text) { return "# " + printable_line(
 
 // ---- gnuplot --------------------------------------------------------------------------------------
 
-std::string terminal_line(const std::string& terminal, const std::string& output) {
-  std::string t;
-  if (terminal == "pngcairo") t = "set terminal pngcairo size 1000,620 font 'sans,11' noenhanced";
-  else if (terminal == "png") t = "set terminal png size 1000,620 truecolor noenhanced";
-  else if (terminal == "svg") t = "set terminal svg size 1000,620 dynamic font 'sans,11' noenhanced";
-  else t = "set terminal " + terminal + " noenhanced";
-  return t + "\nset output " + gnuplot_string(output) + "\n";
+std::string terminal_command(const std::string& terminal) {
+  if (terminal == "pngcairo") return "set terminal pngcairo size 1000,620 font 'sans,11' noenhanced";
+  if (terminal == "png") return "set terminal png size 1000,620 truecolor noenhanced";
+  if (terminal == "pdfcairo") return "set terminal pdfcairo size 8in,4.96in font 'sans,10' noenhanced";
+  if (terminal == "svg") return "set terminal svg size 1000,620 dynamic font 'sans,11' noenhanced";
+  return "set terminal " + terminal + " noenhanced";
 }
 
-std::string image_extension(const std::string& terminal) {
-  if (terminal == "svg") return ".svg";
-  if (terminal == "pngcairo" || terminal == "png") return ".png";
-  return "." + terminal;
+// Every figure in three formats from one script: drawn into BASE.png (pngcairo, or gnuplot's
+// libgd png without cairo), then drawn again with `replot` into BASE.pdf (pdfcairo) and BASE.svg.
+std::string first_output(const std::string& png_terminal, const std::string& base) {
+  return terminal_command(png_terminal) + "\nset output " + gnuplot_string(base + ".png") + "\n";
 }
+
+std::string other_outputs(const std::string& base) {
+  std::string s = "unset output\n";
+  for (const auto& [terminal, ext] : {std::pair<const char*, const char*>{"pdfcairo", ".pdf"}, {"svg", ".svg"}})
+    s += terminal_command(terminal) + "\nset output " + gnuplot_string(base + ext) + "\nreplot\nunset output\n";
+  return s;
+}
+
+std::vector<std::string> image_files(const std::string& base) { return {base + ".png", base + ".pdf", base + ".svg"}; }
 
 template <class Cell>
 std::string x_axis(const std::vector<Series<Cell>>& series) {
@@ -219,11 +232,11 @@ void line_parts(std::vector<std::string>& parts, const std::vector<Series<Cell>>
                       " title " + gnuplot_string(series_title(series[i])));
 }
 
-std::string measure_script(const FigureText& f, const std::string& terminal, const std::string& image, Measure m,
+std::string measure_script(const FigureText& f, const std::string& terminal, Measure m,
                            const std::optional<double>& target, const std::vector<Series<CellSummary>>& series,
                            const std::vector<Role>& role) {
   std::string s = header(f, fmt::format("{} against pilot episodes", name(m)));
-  s += terminal_line(terminal, image);
+  s += first_output(terminal, f.base);
   s += "set title " + gnuplot_lines(f.title) + "\n";
   s += x_axis(series);
   if (m == Measure::model_kl) {
@@ -246,15 +259,15 @@ std::string measure_script(const FigureText& f, const std::string& terminal, con
   if (target)
     parts.push_back("target with lines dt 3 lw 2 lc rgb 'black' title sprintf('target %g', target)");
   s += "plot " + join(parts, ", \\\n     ") + "\n";
-  s += "unset output\n";
+  s += other_outputs(f.base);
   return s;
 }
 
-std::string success_script(const FigureText& f, const std::string& terminal, const std::string& image, Measure m,
+std::string success_script(const FigureText& f, const std::string& terminal, Measure m,
                            double target, double assurance, const std::vector<Series<SuccessCell>>& series,
                            const std::vector<Role>& role) {
   std::string s = header(f, fmt::format("success fraction of {} against pilot episodes", name(m)));
-  s += terminal_line(terminal, image);
+  s += first_output(terminal, f.base);
   s += "set title " + gnuplot_lines(f.title) + "\n";
   s += x_axis(series);
   s += "target = " + text_number(target) + "\n";
@@ -269,7 +282,7 @@ std::string success_script(const FigureText& f, const std::string& terminal, con
   line_parts(parts, series, role, "3:6");
   parts.push_back("assurance with lines dt 3 lw 2 lc rgb 'black' title sprintf('assurance %g', assurance)");
   s += "plot " + join(parts, ", \\\n     ") + "\n";
-  s += "unset output\n";
+  s += other_outputs(f.base);
   return s;
 }
 
@@ -285,21 +298,31 @@ std::string tail(const std::string& text, std::size_t max_lines) {
   return join(lines, "\n");
 }
 
-// Runs gnuplot on `script` inside `folder` (no shell: child_process.hpp); throws std::runtime_error
-// with gnuplot's messages.
-void run_gnuplot(const fs::path& gnuplot, const fs::path& folder, const std::string& script, const std::string& image) {
-  const ChildResult r = run_child(gnuplot, {script}, folder);
-  if (!r.started || r.exit_code != 0) {
-    const std::string why = !r.started          ? std::string("could not be started")
-                            : r.exit_code >= 0 ? fmt::format("exited with status {}", r.exit_code)
-                                               : std::string("was stopped by a signal");
-    throw std::runtime_error(fmt::format("gnuplot ({}) {} on {}{}{}", gnuplot.string(), why, script,
-                                         r.output.empty() ? "" : ":\n", tail(r.output, 12)));
+// Runs gnuplot on `scripts` inside `folder`, several scripts per run (gnuplot reads its file
+// arguments in turn and stops at the first error; no shell: child_process.hpp); throws
+// std::runtime_error with gnuplot's messages, or when an image is missing or empty afterwards.
+// One gnuplot start per script cost about as much as drawing a figure (see DEVELOPERS.md,
+// "Measurements"), hence the batches.
+void run_gnuplot(const fs::path& gnuplot, const fs::path& folder, const std::vector<std::string>& scripts,
+                 const std::vector<std::string>& images) {
+  constexpr std::size_t batch = 64;
+  for (std::size_t first = 0; first < scripts.size(); first += batch) {
+    const std::vector<std::string> some(scripts.begin() + static_cast<std::ptrdiff_t>(first),
+                                        scripts.begin() + static_cast<std::ptrdiff_t>(std::min(scripts.size(), first + batch)));
+    const ChildResult r = run_child(gnuplot, some, folder);
+    if (!r.started || r.exit_code != 0) {
+      const std::string why = !r.started          ? std::string("could not be started")
+                              : r.exit_code >= 0 ? fmt::format("exited with status {}", r.exit_code)
+                                                 : std::string("was stopped by a signal");
+      throw std::runtime_error(fmt::format("gnuplot ({}) {} on {}{}{}", gnuplot.string(), why,
+                                           some.size() == 1 ? some.front() : some.front() + " ... " + some.back(),
+                                           r.output.empty() ? "" : ":\n", tail(r.output, 12)));
+    }
   }
   std::error_code ec;
-  if (!fs::exists(folder / image, ec) || fs::file_size(folder / image, ec) == 0)
-    throw std::runtime_error(fmt::format("gnuplot ({}) made no image from {}{}{}", gnuplot.string(), script,
-                                         r.output.empty() ? "" : ":\n", tail(r.output, 12)));
+  for (const auto& image : images)
+    if (!fs::exists(folder / image, ec) || fs::file_size(folder / image, ec) == 0)
+      throw std::runtime_error(fmt::format("gnuplot ({}) made no image {}", gnuplot.string(), image));
 }
 
 // ---- the page ------------------------------------------------------------------------------------
@@ -430,6 +453,167 @@ bool drawable(const std::vector<Series<Cell>>& series, const std::vector<Role>& 
   return false;
 }
 
+// ---- needed pilot episodes against the target and against the logged budget ------------------------
+
+// The targets of the figure of needed pilot episodes against the target, as multiples of the
+// study's: stricter ones first (what a stricter target costs), then looser ones.
+constexpr double kTargetFactors[] = {0.25, 1.0 / 3.0, 0.5, 2.0 / 3.0, 1.0, 1.5, 2.0};
+
+enum class NeededAxis { target, logged };
+
+struct NeededScale {
+  double low = 1.0;
+  double high = 10.0;
+};
+
+// The y range (log scale) holding every finite positive need and interval end and the simulated
+// pilot budgets, with a margin.
+NeededScale needed_scale(const std::vector<AnswerRow>& rows, const std::vector<int>& pilot_budgets) {
+  double lo = std::numeric_limits<double>::infinity(), hi = 0.0;
+  auto take = [&](double x) {
+    if (std::isfinite(x) && x > 0.0) {
+      lo = std::min(lo, x);
+      hi = std::max(hi, x);
+    }
+  };
+  for (const auto& r : rows) {
+    take(r.needed_pilot);
+    take(r.low);
+    take(r.high);
+  }
+  for (int b : pilot_budgets) take(b);
+  if (!(hi > 0.0)) return {};
+  return {std::max(lo / 1.8, 0.5), hi * 1.8};
+}
+
+// A value for the figure: inside the y range (an infinite upper end or a lower end of 0 drawn at
+// the edge), NaN (not drawn) for an unknown one.
+double clipped(double x, const NeededScale& y) { return std::isnan(x) ? x : std::clamp(x, y.low, y.high); }
+
+// Rows per strategy (in the study's order), each series sorted along the x axis.
+std::vector<std::vector<AnswerRow>> needed_series(const std::vector<AnswerRow>& rows, const std::vector<Strategy>& order,
+                                                  NeededAxis axis) {
+  std::vector<std::vector<AnswerRow>> out;
+  for (Strategy st : order) {
+    std::vector<AnswerRow> s;
+    for (const auto& r : rows)
+      if (r.strategy == st) s.push_back(r);
+    if (s.empty()) continue;
+    std::stable_sort(s.begin(), s.end(), [axis](const AnswerRow& a, const AnswerRow& b) {
+      return axis == NeededAxis::target ? a.target < b.target : a.logged < b.logged;
+    });
+    out.push_back(std::move(s));
+  }
+  return out;
+}
+
+std::string needed_dat(const std::vector<std::vector<AnswerRow>>& series, const NeededScale& y, std::string_view title) {
+  std::string s = title_comment(title);
+  s += "# One block per strategy (gnuplot: index 0, 1, ...), separated by two blank lines.\n"
+       "# needed, low, high: the answer (src/core/answer/answer.hpp; answer.csv's needed_pilot, low, high): inf: the\n"
+       "# target cannot be reached; NaN: unknown (not-reached) or no interval. plot_*: what the figure draws: inf and\n"
+       "# values outside the figure at its edge, NaN where there is no finite need.\n"
+       "# columns: strategy logged target needed low high status plot_needed plot_low plot_high\n";
+  for (std::size_t i = 0; i < series.size(); ++i) {
+    if (i) s += "\n\n";
+    s += fmt::format("# block {}: {}\n", i, name(series[i].front().strategy));
+    for (const auto& r : series[i]) {
+      const bool finite = std::isfinite(r.needed_pilot);
+      const double n = finite ? clipped(r.needed_pilot, y) : std::numeric_limits<double>::quiet_NaN();
+      const double lo = !finite ? n : std::isnan(r.low) ? n : clipped(r.low, y);
+      const double hi = !finite ? n : std::isnan(r.high) ? n : clipped(r.high, y);
+      s += fmt::format("{} {} {} {} {} {} {} {} {} {}\n", name(r.strategy), r.logged, dat_number(r.target),
+                       r.needed_pilot == std::numeric_limits<double>::infinity() ? std::string("inf") : dat_number(r.needed_pilot),
+                       r.low == std::numeric_limits<double>::infinity() ? std::string("inf") : dat_number(r.low),
+                       r.high == std::numeric_limits<double>::infinity() ? std::string("inf") : dat_number(r.high),
+                       name(r.status), dat_number(n), dat_number(lo), dat_number(hi));
+    }
+  }
+  return s;
+}
+
+bool any_finite_need(const std::vector<AnswerRow>& rows) {
+  return std::any_of(rows.begin(), rows.end(), [](const AnswerRow& r) { return std::isfinite(r.needed_pilot); });
+}
+
+std::string needed_script(const FigureText& f, const std::string& terminal, Measure m, NeededAxis axis,
+                          const std::vector<std::vector<AnswerRow>>& series, const NeededScale& y, double study_target,
+                          int largest_pilot, double interval) {
+  std::string s = header(f, axis == NeededAxis::target ? fmt::format("pilot episodes needed against the {} target", name(m))
+                                                       : "pilot episodes needed against the logged budget");
+  s += first_output(terminal, f.base);
+  s += "set title " + gnuplot_lines(f.title) + "\n";
+  std::vector<double> xs;
+  for (const auto& sr : series)
+    for (const auto& r : sr) xs.push_back(axis == NeededAxis::target ? r.target : r.logged);
+  std::sort(xs.begin(), xs.end());
+  xs.erase(std::unique(xs.begin(), xs.end()), xs.end());
+  const double x_max = xs.empty() ? 1.0 : xs.back();
+  if (axis == NeededAxis::target) {
+    s += fmt::format("set xlabel 'target: {} at most (log scale)'\nset logscale x\n", name(m));
+    if (!xs.empty()) s += fmt::format("set xrange [{:.6g}:{:.6g}]\n", xs.front() / 1.25, xs.back() * 1.25);
+    s += "set xtics (" + join_map(xs, ", ", [](double x) { return fmt::format("'{:g}' {}", x, x); }) + ")\n";
+    s += fmt::format("study_target = {}\n", text_number(study_target));
+    s += "set arrow 1 from study_target, graph 0 to study_target, graph 1 nohead dt 3 lw 2 lc rgb 'black'\n";
+  } else {
+    s += "set xlabel 'logged episodes'\n";
+    const double span = std::max(x_max, 1.0);
+    s += fmt::format("set xrange [{:.6g}:{:.6g}]\n", -0.06 * span, x_max + 0.06 * span);
+    s += "set xtics (" + join_map(xs, ", ", [](double x) { return fmt::format("'{:g}' {}", x, x); }) + ")\n";
+  }
+  s += fmt::format("set ylabel 'pilot episodes needed (log scale)'\nset logscale y\nset yrange [{:.6g}:{:.6g}]\nset format y '%g'\n",
+                   y.low, y.high);
+  s += common_style();
+  s += "set key title " + gnuplot_lines({"point: pilot episodes needed", fmt::format("bar: {:g}% interval", interval * 100.0)}) + "\n";
+  s += "data = " + gnuplot_string(f.base + ".dat") + "\n";
+  s += fmt::format("largest = {}\n", largest_pilot);
+  s += "# columns: 1 strategy, 2 logged, 3 target, 4 needed, 5 low, 6 high, 7 status, 8 plot_needed, 9 plot_low, 10 plot_high\n";
+  std::vector<std::string> parts;
+  const double n = static_cast<double>(series.size());
+  for (std::size_t i = 0; i < series.size(); ++i) {
+    // Strategies side by side at the same x, so that their bars do not hide each other.
+    const double shift = static_cast<double>(i) - (n - 1.0) / 2.0;
+    const std::string x = axis == NeededAxis::target
+                              ? fmt::format("($3*{:.6g})", std::exp(0.03 * shift))
+                              : fmt::format("($2+{:.6g})", 0.012 * std::max(x_max, 1.0) * shift);
+    const Strategy st = series[i].front().strategy;
+    const std::string title = axis == NeededAxis::target && st != Strategy::pilot_only
+                                  ? fmt::format("{}, {} logged", name(st), series[i].front().logged)
+                                  : std::string(name(st));
+    parts.push_back(fmt::format("data index {} using {}:8:9:10 with yerrorlines lw 2.5 pt {} ps 1.2 lc rgb '{}' title {}",
+                                i, x, point_type(st), colour(st), gnuplot_string(title)));
+  }
+  parts.push_back("largest with lines dt 3 lw 1.5 lc rgb '#808080' title sprintf('largest simulated pilot budget (%g)', largest)");
+  s += "plot " + join(parts, ", \\\n     ") + "\n";
+  s += other_outputs(f.base);
+  return s;
+}
+
+// ---- report.html ----------------------------------------------------------------------------------
+
+// Every text goes through html_text (user text and the program's own alike).
+std::string html_table(const std::vector<std::string>& head, const std::vector<std::vector<std::string>>& rows,
+                       const std::vector<bool>& right) {
+  std::string s = "<table>\n<thead><tr>";
+  for (std::size_t i = 0; i < head.size(); ++i)
+    s += std::string(i < right.size() && right[i] ? "<th class=\"num\">" : "<th>") + html_text(head[i]) + "</th>";
+  s += "</tr></thead>\n<tbody>\n";
+  for (const auto& row : rows) {
+    s += "<tr>";
+    for (std::size_t i = 0; i < row.size(); ++i)
+      s += std::string(i < right.size() && right[i] ? "<td class=\"num\">" : "<td>") + html_text(row[i]) + "</td>";
+    s += "</tr>\n";
+  }
+  return s + "</tbody>\n</table>\n";
+}
+
+constexpr const char* kHtmlStyle =
+    "body{font-family:sans-serif;max-width:1100px;margin:2em auto;padding:0 1em;line-height:1.45;color:#222}"
+    "table{border-collapse:collapse;margin:0.8em 0}th,td{border:1px solid #ccc;padding:0.25em 0.6em}"
+    "th{background:#f3f3f3}td.num,th.num{text-align:right}div.figure{margin:1.5em 0}img{max-width:100%;height:auto}"
+    "p.caption{font-size:0.92em;color:#444}.caution{border-left:4px solid #D55E00;padding:0.3em 1em;background:#fff6f0}"
+    "p.methods{text-align:justify}";
+
 }  // namespace
 
 // ---- public pieces -------------------------------------------------------------------------------
@@ -494,13 +678,34 @@ std::vector<std::string> gnuplot_terminals(const fs::path& gnuplot) {
   return out;
 }
 
-std::string choose_terminal(const std::vector<std::string>& available) {
-  for (const char* t : {"pngcairo", "png", "svg"})
+std::string png_terminal(const std::vector<std::string>& available) {
+  for (const char* t : {"pngcairo", "png"})
     if (std::find(available.begin(), available.end(), t) != available.end()) return t;
   return {};
 }
 
+std::vector<std::string> missing_terminals(const std::vector<std::string>& available) {
+  auto has = [&](const char* t) { return std::find(available.begin(), available.end(), t) != available.end(); };
+  std::vector<std::string> missing;
+  if (!has("pngcairo") && !has("png")) missing.push_back("pngcairo");
+  if (!has("pdfcairo")) missing.push_back("pdfcairo");
+  if (!has("svg")) missing.push_back("svg");
+  return missing;
+}
+
 // ---- write_report --------------------------------------------------------------------------------
+
+namespace {
+
+// A figure of the page: what the Markdown and HTML pages say about it (plain text; alt holds user
+// text and is escaped by each page).
+struct PageFigure {
+  std::string base;
+  std::string alt;
+  std::string caption;
+};
+
+}  // namespace
 
 ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options) {
   const std::string dir_text = run_dir.string();
@@ -514,9 +719,9 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
                       " has no runs.csv yet: finish the run (run `dobudget plan` again on it to resume) or, for a "
                       "sharded run, merge the shards with `dobudget merge` first");
 
-  // gnuplot and its terminal, before anything is computed or written.
+  // gnuplot and its terminals, before anything is computed or written.
   std::optional<fs::path> gnuplot;
-  std::string terminal = options.terminal;
+  std::string terminal = "pngcairo";  // for PNG; PDF and SVG always pdfcairo and svg
   if (options.render) {
     gnuplot = find_program(options.gnuplot);
     if (!gnuplot)
@@ -525,17 +730,13 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
           "(apt-get install gnuplot-nox), then run `dobudget report` again",
           options.gnuplot, options.gnuplot.find('/') == std::string::npos ? " on PATH" : ""));
     const auto available = gnuplot_terminals(*gnuplot);
-    if (terminal.empty()) {
-      terminal = choose_terminal(available);
-      if (terminal.empty())
-        throw ReportError(fmt::format(
-            "gnuplot ({}) offers none of the terminals pngcairo, png or svg{}: install the Debian package gnuplot-nox",
-            gnuplot->string(), available.empty() ? " (it did not answer)" : ""));
-    } else if (std::find(available.begin(), available.end(), terminal) == available.end()) {
-      throw ReportError(fmt::format("gnuplot ({}) has no terminal '{}'", gnuplot->string(), terminal));
-    }
-  } else if (terminal.empty()) {
-    terminal = "pngcairo";
+    const auto missing = missing_terminals(available);
+    if (!missing.empty())
+      throw ReportError(fmt::format(
+          "gnuplot ({}) has no terminal {}{}, needed for the PNG, PDF and SVG figures: install the Debian package "
+          "gnuplot-nox (its Debian 12 build has pngcairo, pdfcairo and svg)",
+          gnuplot->string(), join(missing, ", "), available.empty() ? " (it did not answer)" : ""));
+    terminal = png_terminal(available);
   }
 
   const FinishedRun run = load_finished_run(run_dir);  // study hash and every row checked (finished_run.hpp)
@@ -544,6 +745,7 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
   const std::vector<AnswerRow> answers = compute_study_answers(study, rows, options.overrides);
   std::vector<std::string> labels;
   for (const auto& sc : study.scenarios) labels.push_back(sc.label);
+  const int bootstrap = options.overrides.bootstrap.value_or(AnswerQuery{}.bootstrap);
 
   // Every figure goes to a temporary folder beside report/, renamed into place at the end.
   TempFolder tmp;
@@ -554,17 +756,42 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
   ReportOutcome outcome;
   outcome.dir = run_dir / "report";
   outcome.page = outcome.dir / "report.md";
-  outcome.terminal = terminal;
-  const std::string ext = image_extension(terminal);
+  outcome.terminal = terminal + ", pdfcairo, svg";
 
   std::map<Measure, std::vector<CellSummary>> summaries;
   for (Measure m : all_measures) summaries[m] = summarise(rows, m);
 
   std::string figures_md;
+  std::vector<std::string> scripts, images;
+  std::vector<std::pair<int, std::vector<PageFigure>>> page_figures;  // per scenario
+  std::vector<std::string> page_notes;                                 // figures left out, per scenario (html)
+  auto add_figure = [&](int scenario, Measure m, FigureKind kind, const std::string& base, std::string alt,
+                        std::string caption) {
+    ReportFigure fig;
+    fig.scenario = scenario;
+    fig.measure = m;
+    fig.kind = kind;
+    fig.success = kind == FigureKind::success;
+    fig.image = base + ".png";
+    fig.images = image_files(base);
+    fig.script = base + ".gp";
+    fig.data = base + ".dat";
+    fig.rendered = options.render;
+    outcome.figures.push_back(fig);
+    scripts.push_back(fig.script);
+    images.insert(images.end(), fig.images.begin(), fig.images.end());
+    page_figures.back().second.push_back({base, std::move(alt), std::move(caption)});
+  };
+  auto links_md = [](const std::string& base) {
+    return fmt::format("Also as [PDF]({}.pdf) and [SVG]({}.svg). Data: [{}.dat]({}.dat), script: [{}.gp]({}.gp).", base,
+                       base, base, base, base, base);
+  };
+
   for (const auto& sc : study.scenarios) {
     const auto& set = sc.settings;
     const int pairs = set.environment.draws * set.replicates;
     const double assurance = options.overrides.assurance.value_or(set.assurance);
+    page_figures.push_back({sc.index, {}});
     figures_md += "\n### " + scenario_heading_md(sc) + "\n";
     for (Measure m : set.measures) {
       std::optional<double> target;
@@ -605,30 +832,39 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
         const std::string why = fmt::format("{}, `{}`: no {}value to draw", scenario_heading_terminal(sc), name(m),
                                             log_y ? "positive finite " : "finite ");
         outcome.skipped.push_back(why);
+        page_notes.push_back(why);
         figures_md += fmt::format("\nNo figure for `{}`: no pair has a {}value of it in this scenario (data: [{}.dat]({}.dat)).\n",
                                   name(m), log_y ? "positive finite " : "finite ", f.base, f.base);
       } else {
-        const std::string image = f.base + ext;
-        write_file_atomically(tmp.path / (f.base + ".gp"),
-                              measure_script(f, terminal, image, m, target, series, role));
-        if (options.render) run_gnuplot(*gnuplot, tmp.path, f.base + ".gp", image);
-        outcome.figures.push_back({sc.index, m, false, image, f.base + ".gp", f.base + ".dat", options.render});
-        figures_md += fmt::format("\n![{} against pilot episodes, {}]({})\n\n", name(m), scenario_heading_md(sc), image);
+        write_file_atomically(tmp.path / (f.base + ".gp"), measure_script(f, terminal, m, target, series, role));
+        const std::string caption = fmt::format(
+            "{} against pilot episodes: median over the {} (environment draw, replicate) pairs at each simulated "
+            "budget (line), 10% to 90% of the pairs (shaded band){}{}. Solid lines: pilot-only{}{}.{}",
+            name(m), pairs, log_y ? ", log scale" : "",
+            target ? fmt::format(", target {} (dotted black line)", text_number(*target)) : std::string(),
+            larger.empty() ? "" : ", ", larger, any_dashed ? " Dashed lines: the other logged budgets (no band)." : "");
+        add_figure(sc.index, m, FigureKind::measure, f.base,
+                   fmt::format("{} against pilot episodes, {}", name(m), scenario_heading(sc)), caption);
+        figures_md += fmt::format("\n![{} against pilot episodes, {}]({}.png)\n\n", name(m), scenario_heading_md(sc), f.base);
         figures_md += fmt::format(
             "`{}` against pilot episodes: median over the {} (environment draw, replicate) pairs at each simulated "
-            "budget (line), 10% to 90% of the pairs (shaded band){}{}. Solid lines: pilot-only{}{}.{} "
-            "Data: [{}.dat]({}.dat), script: [{}.gp]({}.gp).\n",
+            "budget (line), 10% to 90% of the pairs (shaded band){}{}. Solid lines: pilot-only{}{}.{} {}\n",
             name(m), pairs, log_y ? ", log scale" : "",
             target ? fmt::format(", target {} (dotted black line)", text_number(*target)) : std::string(),
             larger.empty() ? "" : ", ", larger,
-            any_dashed ? " Dashed lines: the other logged budgets (no band)." : "", f.base, f.base, f.base, f.base);
+            any_dashed ? " Dashed lines: the other logged budgets (no band)." : "", links_md(f.base));
       }
 
       // The success fraction against pilot episodes.
       if (!target) {
-        outcome.skipped.push_back(
-            fmt::format("{}, `{}` success fraction: no target", scenario_heading_terminal(sc), name(m)));
-        figures_md += fmt::format("\nNo success-fraction figure for `{}`: the study sets no target for it.\n", name(m));
+        const std::string why =
+            fmt::format("{}, `{}` success fraction and pilot episodes needed: no target", scenario_heading_terminal(sc), name(m));
+        outcome.skipped.push_back(why);
+        page_notes.push_back(why);
+        figures_md += fmt::format(
+            "\nNo success-fraction figure and no figures of the pilot episodes needed for `{}`: the study sets no target "
+            "for it.\n",
+            name(m));
         continue;
       }
       const auto success = success_curve(rows, sc.index, m, *target);
@@ -643,26 +879,114 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
                                                              name(m), text_number(*target), study.name,
                                                              scenario_heading(sc))));
       if (!drawable(sseries, srole, [](const SuccessCell& c) { return std::isfinite(c.fraction); })) {
-        outcome.skipped.push_back(
-            fmt::format("{}, `{}` success fraction: no value", scenario_heading_terminal(sc), name(m)));
+        const std::string why = fmt::format("{}, `{}` success fraction: no value", scenario_heading_terminal(sc), name(m));
+        outcome.skipped.push_back(why);
+        page_notes.push_back(why);
         figures_md += fmt::format("\nNo success-fraction figure for `{}`: no pair has a value of it in this scenario.\n",
                                   name(m));
-        continue;
+      } else {
+        write_file_atomically(tmp.path / (g.base + ".gp"),
+                              success_script(g, terminal, m, *target, assurance, sseries, srole));
+        const std::string caption = fmt::format(
+            "Fraction of the pairs with {} at most {} at each simulated budget, as simulated (the answer makes it "
+            "non-decreasing in the budget, then interpolates in log(budget) where it reaches the assurance); dotted "
+            "black line: the assurance {}.",
+            name(m), text_number(*target), text_number(assurance));
+        add_figure(sc.index, m, FigureKind::success, g.base,
+                   fmt::format("fraction of pairs meeting the {} target, {}", name(m), scenario_heading(sc)), caption);
+        figures_md += fmt::format("\n![fraction of pairs meeting the {} target, {}]({}.png)\n\n", name(m),
+                                  scenario_heading_md(sc), g.base);
+        figures_md += fmt::format(
+            "Fraction of the pairs with `{}` at most {} at each simulated budget, as simulated (the answer makes it "
+            "non-decreasing in the budget, then interpolates in log(budget) where it reaches the assurance); dotted "
+            "black line: the assurance {}. {}\n",
+            name(m), text_number(*target), text_number(assurance), links_md(g.base));
       }
-      const std::string image = g.base + ext;
-      write_file_atomically(tmp.path / (g.base + ".gp"),
-                            success_script(g, terminal, image, m, *target, assurance, sseries, srole));
-      if (options.render) run_gnuplot(*gnuplot, tmp.path, g.base + ".gp", image);
-      outcome.figures.push_back({sc.index, m, true, image, g.base + ".gp", g.base + ".dat", options.render});
-      figures_md += fmt::format("\n![fraction of pairs meeting the {} target, {}]({})\n\n", name(m),
-                                scenario_heading_md(sc), image);
-      figures_md += fmt::format(
-          "Fraction of the pairs with `{}` at most {} at each simulated budget, as simulated (the answer makes it "
-          "non-decreasing in the budget, then interpolates in log(budget) where it reaches the assurance); dotted "
-          "black line: the assurance {}. Data: [{}.dat]({}.dat), script: [{}.gp]({}.gp).\n",
-          name(m), text_number(*target), text_number(assurance), g.base, g.base, g.base, g.base);
+
+      // Pilot episodes needed against the target: the answer code on the stored rows at targets
+      // around this one (kTargetFactors), each strategy at its largest logged budget.
+      std::vector<AnswerRow> query_rows;  // this scenario and measure, at the report's target
+      for (const auto& a : answers)
+        if (a.scenario == sc.index && a.measure == m) query_rows.push_back(a);
+      std::map<Strategy, int> largest_logged;
+      for (const auto& a : query_rows) largest_logged[a.strategy] = std::max(largest_logged[a.strategy], a.logged);
+      std::vector<AnswerRow> by_target;
+      for (double factor : kTargetFactors) {
+        const double t = factor == 1.0 ? *target : std::strtod(fmt::format("{:.3g}", *target * factor).c_str(), nullptr);
+        Study one = study;
+        one.scenarios = {sc};
+        one.scenarios.front().settings.targets = {{m, t}};
+        AnswerOverrides ov = options.overrides;
+        ov.targets = {{m, t}};
+        for (const auto& a : compute_study_answers(one, rows, ov))
+          if (a.measure == m && a.logged == largest_logged[a.strategy]) by_target.push_back(a);
+      }
+      const int largest_pilot = set.pilot_budgets.empty()
+                                    ? 0
+                                    : *std::max_element(set.pilot_budgets.begin(), set.pilot_budgets.end());
+      const double interval = query_rows.empty() ? 0.9 : query_rows.front().interval;
+      const std::string what_assurance =
+          query_rows.empty() || query_rows.front().criterion == Criterion::mean
+              ? std::string("the mean criterion")
+              : fmt::format("assurance {}", text_number(assurance));
+      struct Needed {
+        NeededAxis axis;
+        FigureKind kind;
+        std::vector<AnswerRow>* rows;
+        std::string suffix, what;
+      };
+      for (const Needed& n : {Needed{NeededAxis::target, FigureKind::needed_by_target, &by_target, "-needed-by-target",
+                                     fmt::format("pilot episodes needed against the {} target", name(m))},
+                              Needed{NeededAxis::logged, FigureKind::needed_by_logged, &query_rows, "-needed-by-logged",
+                                     fmt::format("pilot episodes needed against the logged budget ({} at most {})",
+                                                 name(m), text_number(*target))}}) {
+        FigureText h{fmt::format("scenario-{}-{}{}", sc.index, name(m), n.suffix), {n.what, title_line2}};
+        const auto nseries = needed_series(*n.rows, set.strategies, n.axis);
+        const NeededScale y = needed_scale(*n.rows, set.pilot_budgets);
+        write_file_atomically(tmp.path / (h.base + ".dat"),
+                              needed_dat(nseries, y, fmt::format("dobudget report data: {}, study {}, {}", n.what,
+                                                                 study.name, scenario_heading(sc))));
+        if (!any_finite_need(*n.rows)) {
+          const std::string why = fmt::format("{}, `{}` {}: no finite answer to draw", scenario_heading_terminal(sc),
+                                              name(m), n.what);
+          outcome.skipped.push_back(why);
+          page_notes.push_back(why);
+          figures_md += fmt::format("\nNo figure of the {}: no strategy reaches a target in the simulated range (data: "
+                                    "[{}.dat]({}.dat)).\n",
+                                    n.what, h.base, h.base);
+          continue;
+        }
+        write_file_atomically(tmp.path / (h.base + ".gp"),
+                              needed_script(h, terminal, m, n.axis, nseries, y, *target, largest_pilot, interval));
+        const std::string common = fmt::format(
+            "Points: the pilot episodes needed ({}), as in the answer tables, with their {:g}% bootstrap interval (bars; "
+            "an infinite upper end or a lower end below the figure is drawn at its edge); a target that cannot be "
+            "reached (or an unknown need) has no point. Above the dotted grey line (the largest simulated pilot "
+            "budget) the needs are extrapolated. Strategies are set slightly apart sideways so that their bars do not "
+            "hide each other.",
+            what_assurance, interval * 100.0);
+        const std::string caption =
+            n.axis == NeededAxis::target
+                ? fmt::format("Pilot episodes needed against the target for {} (log scales), recomputed from the "
+                              "stored run records for targets from {:g} to {:g} times the report's {} (dotted vertical "
+                              "line), without simulating again: what a stricter target costs. Each strategy at its "
+                              "largest logged budget. {}",
+                              name(m), kTargetFactors[0], kTargetFactors[std::size(kTargetFactors) - 1],
+                              text_number(*target), common)
+                : fmt::format("Pilot episodes needed against the logged budget, for {} at most {}: the value of the "
+                              "logged records for each strategy (pilot-only ignores them). {}",
+                              name(m), text_number(*target), common);
+        add_figure(sc.index, m, n.kind, h.base, n.what + ", " + scenario_heading(sc), caption);
+        figures_md += fmt::format("\n![{}, {}]({}.png)\n\n", n.what, scenario_heading_md(sc), h.base);
+        figures_md += markdown_text(caption) + " " + links_md(h.base) + "\n";
+      }
     }
   }
+  if (options.render) run_gnuplot(*gnuplot, tmp.path, scripts, images);
+
+  // ---- the methods paragraph: plain text, escaped whole for each page (methods_text.hpp).
+  const std::vector<std::string> methods = methods_paragraphs({&study, &answers, bootstrap});
+  write_file_atomically(tmp.path / "methods.txt", methods_plain_text(methods));
 
   // ---- report.md. User text (the study name, the run directory's name, swept keys and values,
   // labels) goes in through markdown_text only, never inside a code span.
@@ -670,6 +994,12 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
   std::string md = fmt::format("# Report: {}\n\n", markdown_text(study.name));
   fs::path shown = fs::absolute(run_dir).lexically_normal();
   if (shown.filename().empty()) shown = shown.parent_path();
+  const std::string made_by = fmt::format(
+      "Made by dobudget report (dobudget {}) from the run directory {} ({} run records), without simulating again. {}",
+      DOBUDGET_VERSION, shown.filename().string(), rows.size(),
+      options.overrides.targets.empty() && !options.overrides.assurance
+          ? "Figures and tables use the study's targets and assurance."
+          : "Targets or the assurance were given for this report (see Settings).");
   md += fmt::format(
       "Made by `dobudget report` (dobudget {}) from the run directory {} ({} run records), without simulating "
       "again. {}\n",
@@ -678,18 +1008,21 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
           ? "Figures and tables use the study's targets and assurance."
           : "Targets or the assurance were given for this report (see [Settings](#settings)).");
 
+  md += "\n## Methods\n\nA paragraph to paste into a proposal (also as plain text: [methods.txt](methods.txt)).\n";
+  for (const auto& p : methods) md += "\n" + markdown_text(p) + "\n";
+
   md += "\n## Study\n\n";
   md += fmt::format("Study {}, seed {}. ", markdown_text(study.name), study.seed);
   const auto& assignments0 = study.scenarios.front().assignments;
+  std::vector<std::string> swept_keys;
+  for (const auto& [k, v] : assignments0) swept_keys.push_back(k);
   if (study.scenarios.size() == 1 && assignments0.empty()) {
     md += "One scenario (no sweep).\n";
   } else {
-    std::vector<std::string> keys;
-    for (const auto& [k, v] : assignments0) keys.push_back(k);
     md += fmt::format("{} scenarios, the cartesian product of the swept values of {}:\n\n", study.scenarios.size(),
-                      join_map(keys, ", ", [](const std::string& k) { return markdown_text(k); }));
-    md += "| scenario |" + join_map(keys, "", [](const std::string& k) { return " " + markdown_text(k) + " |"; }) + "\n";
-    md += "|---:|" + std::string() + join_map(keys, "", [](const std::string&) { return std::string("---|"); }) + "\n";
+                      join_map(swept_keys, ", ", [](const std::string& k) { return markdown_text(k); }));
+    md += "| scenario |" + join_map(swept_keys, "", [](const std::string& k) { return " " + markdown_text(k) + " |"; }) + "\n";
+    md += "|---:|" + std::string() + join_map(swept_keys, "", [](const std::string&) { return std::string("---|"); }) + "\n";
     for (const auto& sc : study.scenarios)
       md += fmt::format("| {} |", sc.index) +
             join_map(sc.assignments, "", [](const std::pair<std::string, std::string>& a) { return " " + markdown_text(a.second) + " |"; }) +
@@ -698,47 +1031,129 @@ ReportOutcome write_report(const fs::path& run_dir, const ReportOptions& options
 
   md += "\n## Answer\n";
   md += answer_section(format_answer_md(study.name, labels, answers));
-  {
-    const auto open = std::count_if(rows.begin(), rows.end(), [](const RunRecord& r) { return !r.confirmed; });
-    md += fmt::format(
-        "\nOf the {} run records, {} ({}) come from a fit whose best optimum no second EM start reached "
-        "(`confirmed` 0 in runs.csv; fit settings `restarts` and `max_restarts`).\n",
-        rows.size(), open,
-        rows.empty() ? std::string("-")
-                     : fmt::format("{:g}%", std::round(1000.0 * static_cast<double>(open) / static_cast<double>(rows.size())) / 10.0));
-  }
+  const auto open = std::count_if(rows.begin(), rows.end(), [](const RunRecord& r) { return !r.confirmed; });
+  const std::string open_share =
+      rows.empty() ? std::string("-")
+                   : fmt::format("{:g}%", std::round(1000.0 * static_cast<double>(open) / static_cast<double>(rows.size())) / 10.0);
+  md += fmt::format(
+      "\nOf the {} run records, {} ({}) come from a fit whose best optimum no second EM start reached "
+      "(`confirmed` 0 in runs.csv; fit settings `restarts` and `max_restarts`).\n",
+      rows.size(), open, open_share);
 
   md += "\n## Figures\n\n";
-  md += "For each scenario and measure: the measure against the pilot budget for each way of using the data, and "
-        "the fraction of (environment draw, replicate) pairs that meet the target. Each figure's data (`.dat`) and "
-        "gnuplot script (`.gp`) sit beside it in this folder: edit the script and run `gnuplot NAME.gp` here to "
-        "restyle a figure. The `.dat` files are whitespace-separated columns with `#` comments (pandas: "
-        "`read_csv(f, sep=r\"\\s+\", comment=\"#\", header=None)`).\n";
+  md += "For each scenario and measure: the measure against the pilot budget for each way of using the data, the "
+        "fraction of (environment draw, replicate) pairs that meet the target, and the pilot episodes needed against "
+        "the target and against the logged budget. Every figure is here as PNG, PDF and SVG. Each figure's data "
+        "(`.dat`) and gnuplot script (`.gp`) sit beside it in this folder: edit the script and run `gnuplot NAME.gp` "
+        "here to restyle a figure (it writes all three formats). The `.dat` files are whitespace-separated columns "
+        "with `#` comments (pandas: `read_csv(f, sep=r\"\\s+\", comment=\"#\", header=None)`). The same page with "
+        "every figure embedded, for a reader without a Markdown viewer: [report.html](report.html).\n";
   if (!options.render)
     md += "\n**The figures were not drawn** (gnuplot was not run): run `gnuplot NAME.gp` in this folder for each "
           "script to draw them.\n";
   md += figures_md;
 
+  std::map<Measure, double> report_targets = first.targets;
+  for (const auto& [m, t] : options.overrides.targets) report_targets[m] = t;
+  const double report_assurance = options.overrides.assurance.value_or(first.assurance);
+  const auto settings = settings_rows(first, report_targets, report_assurance);
+  auto is_swept = [&](const std::string& key) {
+    return std::find(swept_keys.begin(), swept_keys.end(), key) != swept_keys.end();
+  };
   md += "\n## Settings\n\n";
   md += "Every setting, with every default filled in: [study.resolved.yaml](../study.resolved.yaml). The main ones";
   md += study.scenarios.size() > 1 ? " (swept settings vary by scenario, see [Study](#study)):\n\n" : ":\n\n";
-  {
-    std::map<Measure, double> targets = first.targets;
-    for (const auto& [m, t] : options.overrides.targets) targets[m] = t;
-    const double assurance = options.overrides.assurance.value_or(first.assurance);
-    md += "| setting | value |\n|---|---|\n";
-    for (const auto& [key, value] : settings_rows(first, targets, assurance)) {
-      const bool swept = std::any_of(assignments0.begin(), assignments0.end(),
-                                     [&k = key](const auto& a) { return a.first == k; });  // clang 14: no capture of a structured binding
-      // Keys and values here are the program's own text (setting names, numbers), not user text.
-      md += fmt::format("| `{}` | {} |\n", key, swept ? std::string("swept (see [Study](#study))") : value);
-    }
-  }
+  md += "| setting | value |\n|---|---|\n";
+  for (const auto& [key, value] : settings)
+    // Keys and values here are the program's own text (setting names, numbers), not user text.
+    md += fmt::format("| `{}` | {} |\n", key, is_swept(key) ? std::string("swept (see [Study](#study))") : value);
 
   md += "\n## Caution\n\n";
   md += kCaution;
   md += "\n";
   write_file_atomically(tmp.path / "report.md", md);
+
+  // ---- report.html: stands alone (styles inline, every figure embedded as a data: URI of its SVG,
+  // which an <img> shows without running scripts or loading anything); every text through html_text.
+  {
+    std::string h = "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n<title>" +
+                    html_text("Report: " + study.name) + "</title>\n<style>" + kHtmlStyle + "</style>\n</head>\n<body>\n";
+    h += "<h1>" + html_text("Report: " + study.name) + "</h1>\n<p>" + html_text(made_by) + "</p>\n";
+    h += "<h2 id=\"methods\">Methods</h2>\n";
+    for (const auto& p : methods) h += "<p class=\"methods\">" + html_text(p) + "</p>\n";
+    h += "<h2 id=\"study\">Study</h2>\n<p>" + html_text(fmt::format("Study {}, seed {}.", study.name, study.seed)) +
+         (study.scenarios.size() == 1 && assignments0.empty() ? " One scenario (no sweep).</p>\n" : "</p>\n");
+    if (!(study.scenarios.size() == 1 && assignments0.empty())) {
+      std::vector<std::string> head{"scenario"};
+      head.insert(head.end(), swept_keys.begin(), swept_keys.end());
+      std::vector<std::vector<std::string>> body;
+      for (const auto& sc : study.scenarios) {
+        std::vector<std::string> row{std::to_string(sc.index)};
+        for (const auto& a : sc.assignments) row.push_back(a.second);
+        body.push_back(row);
+      }
+      h += html_table(head, body, {true});
+    }
+    h += "<h2 id=\"answer\">Answer</h2>\n<p>" +
+         html_text("Pilot episodes needed, rounded up to whole episodes (answer.csv keeps the unrounded values); see "
+                   "answer.md in the run directory for how to read each column.") +
+         "</p>\n";
+    const ReadableAnswers readable = readable_answers(answers);
+    std::vector<std::tuple<int, Measure, double, Criterion>> groups;
+    for (const auto& r : readable.rows) {
+      const auto key = std::make_tuple(r.scenario, r.measure, r.target, r.criterion);
+      if (std::find(groups.begin(), groups.end(), key) == groups.end()) groups.push_back(key);
+    }
+    for (const auto& key : groups) {
+      const auto& sc = study.scenarios.at(static_cast<std::size_t>(std::get<0>(key)));
+      std::vector<std::vector<std::string>> body;
+      std::string heading;
+      for (std::size_t i = 0; i < readable.rows.size(); ++i) {
+        const AnswerRow& r = readable.rows[i];
+        if (std::make_tuple(r.scenario, r.measure, r.target, r.criterion) != key) continue;
+        if (heading.empty())
+          heading = fmt::format("{}: {} at most {} ({})", scenario_heading(sc), name(r.measure), text_number(r.target),
+                                r.criterion == Criterion::mean ? std::string("mean criterion")
+                                                               : fmt::format("assurance {}", text_number(r.assurance)));
+        body.push_back({std::string(name(r.strategy)), readable.logged[i], needed_text(r), interval_text(r),
+                        std::string(name(r.status)), std::to_string(r.pairs), std::to_string(r.draws)});
+      }
+      h += "<h3>" + html_text(heading) + "</h3>\n";
+      h += html_table({"strategy", "logged", "needed pilot", fmt::format("{:g}% interval", readable.rows.empty() ? 90.0 : readable.rows.front().interval * 100.0),
+                       "status", "pairs", "draws"},
+                      body, {false, true, true, false, false, true, true});
+    }
+    if (readable.left_out > 0) h += "<p>" + html_text(std::string(readable_answers_note())) + ".</p>\n";
+    h += "<p>" + html_text(fmt::format("Of the {} run records, {} ({}) come from a fit whose best optimum no second EM "
+                                       "start reached (confirmed 0 in runs.csv).",
+                                       rows.size(), open, open_share)) +
+         "</p>\n";
+    h += "<h2 id=\"figures\">Figures</h2>\n";
+    if (!options.render) h += "<p>" + html_text("The figures were not drawn (gnuplot was not run).") + "</p>\n";
+    for (const auto& [scenario, figs] : page_figures) {
+      h += "<h3>" + html_text(scenario_heading(study.scenarios.at(static_cast<std::size_t>(scenario)))) + "</h3>\n";
+      for (const auto& fig : figs) {
+        h += "<div class=\"figure\">\n";
+        if (options.render)
+          h += "<img alt=\"" + html_text(fig.alt) + "\" src=\"data:image/svg+xml;base64," +
+               base64(read_file(tmp.path / (fig.base + ".svg"))) + "\">\n";
+        h += "<p class=\"caption\">" + html_text(fig.caption + " Files in report/: " + fig.base + ".png, .pdf, .svg, .dat, .gp.") +
+             "</p>\n</div>\n";
+      }
+    }
+    for (const auto& note : page_notes) h += "<p>" + html_text("Left out: " + note) + "</p>\n";
+    h += "<h2 id=\"settings\">Settings</h2>\n<p>" +
+         html_text("Every setting, with every default filled in, is in study.resolved.yaml in the run directory. The "
+                   "main ones:") +
+         "</p>\n";
+    {
+      std::vector<std::vector<std::string>> body;
+      for (const auto& [key, value] : settings) body.push_back({key, is_swept(key) ? std::string("swept (see Study)") : value});
+      h += html_table({"setting", "value"}, body, {});
+    }
+    h += "<h2 id=\"caution\">Caution</h2>\n<p class=\"caution\">" + html_text(kCaution) + "</p>\n</body>\n</html>\n";
+    write_file_atomically(tmp.path / "report.html", h);
+  }
 
   // Into place: an older report/ is moved aside, the new one renamed in, the old one removed.
   const fs::path final_dir = run_dir / "report";

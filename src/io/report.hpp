@@ -4,18 +4,30 @@
 // It reads DIR/study.resolved.yaml and DIR/runs.csv, computes the answers (compute_study_answers,
 // with the study's targets and assurance unless overridden) and writes DIR/report/:
 //
-//   report.md                          the page: study, scenarios and their swept values, the answer
-//                                      tables, the figures, a link to ../study.resolved.yaml and
-//                                      the caution. Plain Markdown; images by relative path.
+//   report.md                          the page: the methods paragraph (methods_text.hpp), study,
+//                                      scenarios and their swept values, the answer tables, the
+//                                      figures, a link to ../study.resolved.yaml and the caution.
+//                                      Plain Markdown; images (PNG) by relative path.
+//   methods.txt                        the methods paragraph as plain text, to paste into a proposal.
+//   report.html                        the same page for a reader without a Markdown viewer; it stands
+//                                      alone: styles inline, every figure embedded as a data: URI of its
+//                                      SVG (base64.hpp) in an <img> (no script runs, nothing is loaded),
+//                                      no external reference; all text through html_text.
 //   scenario-<i>-<measure>.dat         the per-cell summary of the measure (summarise(), summary.hpp)
-//   scenario-<i>-<measure>.gp          gnuplot script drawing it ...
-//   scenario-<i>-<measure>.png         ... : x = pilot episodes (log scale), y = the measure (log
+//   scenario-<i>-<measure>.gp          gnuplot script drawing it into .png, .pdf and .svg ...
+//   scenario-<i>-<measure>.{png,pdf,svg}  ... : x = pilot episodes (log scale), y = the measure (log
 //                                      scale for model_kl); the median of each strategy at each
 //                                      logged budget with its q10-q90 band shaded; the target as a
 //                                      horizontal line.
 //   scenario-<i>-<measure>-success.*   the raw success fraction (success_curve.hpp) against pilot
-//                                      episodes, with the assurance as a horizontal line. Only for
-//                                      measures that have a target in that scenario.
+//                                      episodes, with the assurance as a horizontal line. This and the
+//                                      two below only for measures that have a target in that scenario.
+//   scenario-<i>-<measure>-needed-by-target.*  pilot episodes needed (with the bootstrap interval)
+//                                      against the target, recomputed by the answer code
+//                                      (compute_study_answers) from the stored rows at 1/4 to 2 times
+//                                      the report's target, each strategy at its largest logged budget.
+//   scenario-<i>-<measure>-needed-by-logged.*  pilot episodes needed against the logged budget, for
+//                                      each strategy, at the report's target (the answer tables' rows).
 //
 // Which lines a figure draws (every cell is in the .dat file all the same): pilot-only once, at
 // the smallest logged budget where it has records (it ignores logged data), and every other
@@ -38,8 +50,9 @@
 // (printable_line), report.md only through markdown_text, and the terminal only
 // through printable_line; see text_escape.hpp.
 //
-// gnuplot runs as a child process (one per figure), without a shell (child_process.hpp).
-// Terminal: pngcairo when the installed gnuplot has it, else png, else svg (images .png or .svg).
+// gnuplot runs as a child process, without a shell (child_process.hpp), on up to 64 scripts per
+// run. Each script draws its figure three times: PNG (pngcairo, or png when gnuplot has no cairo),
+// PDF (pdfcairo) and SVG (svg); a gnuplot without pdfcairo or svg is refused, naming gnuplot-nox.
 // Everything is written to a temporary folder DIR/.report.tmp.<pid> and renamed to DIR/report at
 // the end (an older report/ is replaced only then), so a failed run leaves no half-written
 // report/ and leaves an earlier report as it was.
@@ -66,16 +79,19 @@ struct ReportError : std::runtime_error {
 
 struct ReportOptions {
   std::string gnuplot = "gnuplot";  // a program name searched on PATH, or a path to it
-  std::string terminal;             // empty: pngcairo, else png, else svg, as the gnuplot has them
   bool render = true;               // false: write data, scripts and report.md but do not run gnuplot
   AnswerOverrides overrides;        // targets and assurance for the answers and the figures
 };
 
+enum class FigureKind { measure, success, needed_by_target, needed_by_logged };
+
 struct ReportFigure {
   int scenario = 0;
   Measure measure = Measure::model_kl;
-  bool success = false;      // false: the measure against pilot; true: the success fraction
-  std::string image;         // file names inside report/
+  FigureKind kind = FigureKind::measure;
+  bool success = false;      // kind == success
+  std::string image;         // file names inside report/: the PNG (the one report.md shows)
+  std::vector<std::string> images;  // .png, .pdf, .svg
   std::string script;
   std::string data;
   bool rendered = false;     // the image was made (render == true)
@@ -84,7 +100,7 @@ struct ReportFigure {
 struct ReportOutcome {
   std::filesystem::path dir;   // DIR/report
   std::filesystem::path page;  // DIR/report/report.md
-  std::string terminal;        // the gnuplot terminal used
+  std::string terminal;        // the gnuplot terminals used, e.g. "pngcairo, pdfcairo, svg"
   std::vector<ReportFigure> figures;
   std::vector<std::string> skipped;  // figures left out, with the reason
 };
@@ -107,9 +123,11 @@ std::string success_dat(const std::vector<SuccessCell>& cells, std::string_view 
 // The program as run: a name without '/' is searched on PATH; a path must be an executable file.
 std::optional<std::filesystem::path> find_program(const std::string& program);
 
-// Terminals the gnuplot has (GPVAL_TERMINALS), and the preferred one among them (pngcairo, png,
-// svg; empty when none).
+// Terminals the gnuplot has (GPVAL_TERMINALS); the PNG terminal among them (pngcairo, else png;
+// empty when none); and the terminals the report needs that are missing (pngcairo standing for
+// either PNG terminal, pdfcairo, svg).
 std::vector<std::string> gnuplot_terminals(const std::filesystem::path& gnuplot);
-std::string choose_terminal(const std::vector<std::string>& available);
+std::string png_terminal(const std::vector<std::string>& available);
+std::vector<std::string> missing_terminals(const std::vector<std::string>& available);
 
 }  // namespace dobudget::io

@@ -130,4 +130,19 @@ std::string markdown_text(std::string_view text) {
   return out;
 }
 
+std::string html_text(std::string_view text) {
+  std::string out;
+  for (char c : printable_line(text)) {
+    switch (c) {
+      case '&': out += "&amp;"; break;
+      case '<': out += "&lt;"; break;
+      case '>': out += "&gt;"; break;
+      case '"': out += "&quot;"; break;
+      case '\'': out += "&#39;"; break;
+      default: out += c;
+    }
+  }
+  return out;
+}
+
 }  // namespace dobudget::io

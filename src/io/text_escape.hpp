@@ -65,4 +65,13 @@ std::string gnuplot_lines(const std::vector<std::string>& lines);
 // cells, link and image text.
 std::string markdown_text(std::string_view text);
 
+// HTML text showing `text` literally (printable_line first: no line break, control character or
+// bidirectional control survives, and the text is valid UTF-8). & < > " ' become the character
+// references &amp; &lt; &gt; &quot; &#39;, so the result is safe both as element content and inside
+// a double- or single-quoted attribute value (HTML Living Standard, sec. 13.1.2.3 "Attributes" and
+// 13.5 "Named character references"; the same five characters as rule 1 of the OWASP "Cross Site
+// Scripting Prevention Cheat Sheet"). It is not safe inside <script> or <style>, in an unquoted
+// attribute, or in a URL attribute (href, src): report.html puts user text in none of these.
+std::string html_text(std::string_view text);
+
 }  // namespace dobudget::io

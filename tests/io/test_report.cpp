@@ -26,7 +26,10 @@
 #include "core/answer/summary.hpp"
 #include "core/running/unit.hpp"
 #include "io/atomic_file.hpp"
+#include "io/answer_table.hpp"
+#include "io/base64.hpp"
 #include "io/child_process.hpp"
+#include "io/methods_text.hpp"
 #include "io/report.hpp"
 #include "io/run_directory.hpp"
 #include "io/runs_table.hpp"
@@ -164,10 +167,11 @@ TEST_CASE("report: page, data, scripts and figures of a run directory", "[report
   REQUIRE(fs::is_directory(rep));
   CHECK_FALSE(leftovers(dir));
   CHECK(out.page == rep / "report.md");
-  if (have_gnuplot()) CHECK(out.terminal == io::choose_terminal(io::gnuplot_terminals(*io::find_program("gnuplot"))));
+  if (have_gnuplot())
+    CHECK(out.terminal == io::png_terminal(io::gnuplot_terminals(*io::find_program("gnuplot"))) + ", pdfcairo, svg");
   CHECK(out.skipped.empty());
-  // 2 scenarios x 2 measures x (measure, success).
-  REQUIRE(out.figures.size() == 8);
+  // 2 scenarios x 2 measures x (measure, success, needed by target, needed by logged).
+  REQUIRE(out.figures.size() == 16);
 
   const Study study = io::load_study(dir / "study.resolved.yaml");
   const auto rows = io::read_runs(dir / "runs.csv");
@@ -228,16 +232,14 @@ TEST_CASE("report: page, data, scripts and figures of a run directory", "[report
       CHECK(contains(gp, "dt 2"));  // logged 20: dashed
       CHECK(contains(text_of(rep / (base + "-success.gp")), "assurance = 0.8"));
 
-      // The page links both images by relative path, and their data and scripts.
-      const std::string ext = out.terminal == "svg" ? ".svg" : ".png";
-      CHECK(contains(md, "](" + base + ext + ")"));
-      CHECK(contains(md, "](" + base + "-success" + ext + ")"));
-      CHECK(contains(md, "](" + base + ".dat)"));
-      CHECK(contains(md, "](" + base + ".gp)"));
-      if (have_gnuplot()) {
-        CHECK(fs::file_size(rep / (base + ext)) > 1000);
-        CHECK(fs::file_size(rep / (base + "-success" + ext)) > 1000);
-        if (ext == ".png") CHECK(is_png(rep / (base + ext)));
+      // The page shows every figure's PNG by relative path and links its PDF, SVG, data and script.
+      for (const std::string& b : {base, base + "-success", base + "-needed-by-target", base + "-needed-by-logged"}) {
+        INFO(b);
+        CHECK(contains(md, "](" + b + ".png)"));
+        CHECK(contains(md, "](" + b + ".pdf)"));
+        CHECK(contains(md, "](" + b + ".svg)"));
+        CHECK(contains(md, "](" + b + ".dat)"));
+        CHECK(contains(md, "](" + b + ".gp)"));
       }
     }
   }
@@ -255,6 +257,8 @@ TEST_CASE("report: page, data, scripts and figures of a run directory", "[report
   CHECK(contains(md, "| `logging.privilege` | swept"));
   CHECK(contains(md, "| `budgets.pilot` | 5, 10, 20 |"));
   CHECK_FALSE(contains(md, "\n# Pilot episodes needed"));  // format_answer_md's own title is left out
+  CHECK(contains(md, "\n## Methods\n"));
+  CHECK(md.find("## Methods") < md.find("## Study"));  // at the top
 }
 
 TEST_CASE("report: a second run replaces the report; scripts redraw from report/", "[report]") {
@@ -282,29 +286,38 @@ TEST_CASE("report: paths with spaces, quotes and dollars are passed to gnuplot s
     for (const auto& f : out.figures) CHECK(fs::is_regular_file(dir / "report" / f.image));
 }
 
-TEST_CASE("report: the svg terminal when asked for", "[report]") {
+TEST_CASE("report: every figure as PNG, PDF and SVG", "[report][formats]") {
   if (!have_gnuplot()) return;
-  const auto terms = io::gnuplot_terminals(*io::find_program("gnuplot"));
-  if (std::find(terms.begin(), terms.end(), "svg") == terms.end()) {
-    WARN("this gnuplot has no svg terminal: not checked");
-    return;
-  }
   TempDir tmp;
   const fs::path dir = copy_run(tmp.path() / "run");
-  io::ReportOptions o;
-  o.terminal = "svg";
-  const auto out = io::write_report(dir, o);
-  CHECK(out.terminal == "svg");
-  CHECK(fs::is_regular_file(dir / "report" / "scenario-0-model_kl.svg"));
-  CHECK(contains(text_of(dir / "report" / "scenario-0-model_kl.svg"), "<svg"));
-  CHECK(contains(text_of(dir / "report" / "report.md"), "](scenario-0-model_kl.svg)"));
-}
-
-TEST_CASE("report: terminal preference", "[report]") {
-  CHECK(io::choose_terminal({"dumb", "svg", "png", "pngcairo"}) == "pngcairo");
-  CHECK(io::choose_terminal({"svg", "png"}) == "png");
-  CHECK(io::choose_terminal({"dumb", "svg"}) == "svg");
-  CHECK(io::choose_terminal({"dumb"}).empty());
+  const auto out = io::write_report(dir, options());
+  REQUIRE(out.figures.size() == 16);
+  for (const auto& f : out.figures) {
+    INFO(f.image);
+    REQUIRE(f.images.size() == 3);
+    CHECK(f.images[0] == f.image);
+    // File signatures: PNG (ISO/IEC 15948:2004, sec. 5.2: the 8-byte signature), PDF (ISO 32000-1:2008,
+    // sec. 7.5.2: the header "%PDF-" followed by the version), SVG (W3C SVG 1.1, sec. 5.1: an <svg> root).
+    CHECK(f.images[0] == f.script.substr(0, f.script.size() - 3) + ".png");
+    CHECK(is_png(dir / "report" / f.images[0]));
+    CHECK(fs::file_size(dir / "report" / f.images[0]) > 1000);
+    CHECK(text_of(dir / "report" / f.images[1]).rfind("%PDF-", 0) == 0);
+    CHECK(fs::file_size(dir / "report" / f.images[1]) > 1000);
+    CHECK(f.images[2] == f.script.substr(0, f.script.size() - 3) + ".svg");
+    CHECK(contains(text_of(dir / "report" / f.images[2]), "<svg"));
+    CHECK(contains(text_of(dir / "report" / f.images[2]), "</svg>"));
+  }
+  // The shapes of the files, read by programs outside the project when they are installed:
+  // file(1)'s magic database, and pdfinfo (poppler-utils) for one page.
+  if (const auto file = io::find_program("file")) {
+    const auto& f = out.figures.front();
+    const auto r = io::run_child(*file, {"-b", f.images[0], f.images[1], f.images[2]}, dir / "report");
+    REQUIRE(r.exit_code == 0);
+    INFO(r.output);
+    CHECK(contains(r.output, "PNG image data, 1000 x 620"));
+    CHECK(contains(r.output, "PDF document"));
+    CHECK(contains(r.output, "SVG"));
+  }
 }
 
 TEST_CASE("report: errors name the problem and leave no half-written report", "[report]") {
@@ -352,7 +365,7 @@ TEST_CASE("report: errors name the problem and leave no half-written report", "[
   if (have_gnuplot()) {
     // gnuplot failing midway (a script it rejects): an executable that fails after the terminal query.
     const fs::path fake = tmp.path() / "fake-gnuplot";
-    io::write_file_atomically(fake, "#!/bin/sh\nif [ \"$1\" = -e ]; then echo pngcairo png svg; exit 0; fi\n"
+    io::write_file_atomically(fake, "#!/bin/sh\nif [ \"$1\" = -e ]; then echo pngcairo pdfcairo png svg; exit 0; fi\n"
                                     "echo 'line 1: simulated failure' >&2; exit 1\n");
     fs::permissions(fake, fs::perms::owner_all);
     io::ReportOptions o;
@@ -411,7 +424,7 @@ TEST_CASE("report: a hostile study name runs nothing and is shown only escaped",
   CHECK(fs::exists(fs::current_path() / "PWNED") == pwned_before);
 
   // The report renders: every figure is drawn.
-  REQUIRE(out.figures.size() == 8);
+  REQUIRE(out.figures.size() == 16);
   if (have_gnuplot())
     for (const auto& f : out.figures) {
       INFO(f.image);
@@ -488,9 +501,197 @@ TEST_CASE("report: a hostile study name runs nothing and is shown only escaped",
     CHECK(lines[0].rfind("# dobudget report data:", 0) == 0);
     CHECK(contains(lines[0], "back\\slash line2](http://e)<script>"));
     for (const auto& line : lines) CHECK((line.empty() || line.front() == '#' || std::isalpha(static_cast<unsigned char>(line.front()))));
-    CHECK(data_lines(rep / f.data).size() == 27);
+    if (f.kind == io::FigureKind::measure || f.kind == io::FigureKind::success) CHECK(data_lines(rep / f.data).size() == 27);
   }
   // A newline or CR in the title cannot end the comment line (pandas takes CR as a line break).
   const std::string dat = io::summary_dat({}, "study a\nb\rc");
   CHECK(dat.rfind("# study a b c\n# ", 0) == 0);
+}
+
+namespace {
+
+// The answers the report computes (the study's targets unless overridden), for the checks below.
+std::vector<AnswerRow> study_answers(const fs::path& dir, const AnswerOverrides& ov = {}) {
+  const Study study = io::load_study(dir / "study.resolved.yaml");
+  return compute_study_answers(study, io::read_runs(dir / "runs.csv"), ov);
+}
+
+// The row of `answers` for this scenario, measure, strategy and logged budget.
+const AnswerRow& answer_of(const std::vector<AnswerRow>& answers, int scenario, Measure m, Strategy st, int logged) {
+  for (const auto& a : answers)
+    if (a.scenario == scenario && a.measure == m && a.strategy == st && a.logged == logged) return a;
+  FAIL("no answer row");
+  return answers.front();
+}
+
+}  // namespace
+
+TEST_CASE("report: the methods paragraph holds the study's numbers and the caution; methods.txt the same text",
+          "[report][methods]") {
+  TempDir tmp;
+  const fs::path dir = copy_run(tmp.path() / "run");
+  io::write_report(dir, options());
+  const std::string txt = text_of(dir / "report" / "methods.txt");
+  const std::string md = text_of(dir / "report" / "report.md");
+  const auto answers = study_answers(dir);
+  INFO(txt);
+  // What was simulated (the study: 2 draws, 2 replicates, S 2 A 2 O 2, H 3; a sweep over the privilege).
+  CHECK(contains(txt, "simulated 2 worlds (environment draws)"));
+  CHECK(contains(txt, "2 replicates of the data in each world: 4 (world, replicate) pairs"));
+  CHECK(contains(txt, "2 hidden states, 2 actions and 2 observations, horizon 3 steps"));
+  CHECK(contains(txt, "swept logging.privilege over 0, 0.9: 2 scenarios"));
+  CHECK(contains(txt, "with privilege swept over 0, 0.9 and temperature 0.2"));
+  CHECK(contains(txt, "Pilot episodes chose actions uniformly at random"));
+  CHECK(contains(txt, "Logged budgets: 0, 20, 40 episodes; pilot budgets: 5, 10, 20 episodes"));
+  // Fitting and criterion.
+  CHECK(contains(txt, "2 latent states"));  // fit.latent_states: by default the environment's states
+  CHECK(contains(txt, "pseudo-count of 0.1"));
+  CHECK(contains(txt, "from 1 to 10 starts of at most 20 iterations"));
+  CHECK(contains(txt, "at most 0.05 in at least 80% of the pairs"));
+  CHECK(contains(txt, "at most 0.3 in at least 80% of the pairs"));
+  CHECK(contains(txt, "90% two-stage percentile bootstrap intervals (1000 resamples"));
+  // The answer of every strategy at the largest logged budget, with its interval, in each scenario,
+  // as answer.csv's rows give them (the tables' rounding: io::needed_text, io::interval_text).
+  for (int sc = 0; sc < 2; ++sc)
+    for (Measure m : {Measure::model_kl, Measure::return_gap})
+      for (Strategy st : {Strategy::pooled, Strategy::regime_aware}) {
+        const AnswerRow& a = answer_of(answers, sc, m, st, 40);
+        const std::string expected = fmt::format("{} needs {}", name(st), io::needed_text(a));
+        INFO(expected);
+        CHECK(contains(txt, expected));
+        if (a.status != AnswerStatus::unreachable) CHECK(contains(txt, "90% interval " + io::interval_text(a)));
+      }
+  CHECK(contains(txt, "in scenario 1 (logging.privilege=0.9), with 40 logged episodes"));
+  CHECK(contains(txt, "Worst case over the scenarios"));
+  CHECK(contains(txt, "pilot-only, which ignores the logged episodes, needs"));
+  // The caution closes the text.
+  CHECK(contains(txt, "\n" + std::string(io::methods_caution()) + "\n"));
+  CHECK(contains(txt, "no substitute for a qualified statistician, for ethics review, or for the regulations"));
+  // Plain text: one line per paragraph, a blank line between them; the same paragraphs in report.md
+  // (escaped: markdown_text) under "## Methods".
+  const Study study = io::load_study(dir / "study.resolved.yaml");
+  const auto methods = io::methods_paragraphs({&study, &answers, 1000});
+  CHECK(txt == io::methods_plain_text(methods));
+  REQUIRE(methods.size() == 6);
+  for (const auto& p : methods) CHECK(contains(md, "\n" + io::markdown_text(p) + "\n"));
+  CHECK(contains(md, "](methods.txt)"));
+}
+
+TEST_CASE("report: pilot episodes needed against the target and the logged budget, from the stored rows",
+          "[report][needed]") {
+  TempDir tmp;
+  const fs::path dir = copy_run(tmp.path() / "run");
+  // --target and --assurance as in `answer`: the figures centre on the given target.
+  io::ReportOptions o = options();
+  o.overrides.targets[Measure::model_kl] = 0.08;
+  o.overrides.assurance = 0.75;
+  const auto out = io::write_report(dir, o);
+  const fs::path rep = dir / "report";
+  const auto answers = study_answers(dir, o.overrides);
+  const Study study = io::load_study(dir / "study.resolved.yaml");
+  const auto rows = io::read_runs(dir / "runs.csv");
+  for (int sc = 0; sc < 2; ++sc)
+    for (Measure m : {Measure::model_kl, Measure::return_gap}) {
+      const double target = m == Measure::model_kl ? 0.08 : 0.3;
+      const std::string base = fmt::format("scenario-{}-{}", sc, name(m));
+      INFO(base);
+      // Against the logged budget: one block per strategy, one line per logged budget, the
+      // answer rows at the report's target and assurance.
+      const auto by_logged = data_lines(rep / (base + "-needed-by-logged.dat"));
+      REQUIRE(by_logged.size() == 3 * 3);
+      for (const auto& w : by_logged) {
+        REQUIRE(w.size() == 10);
+        const AnswerRow& a = answer_of(answers, sc, m, *parse_strategy(w[0]), std::stoi(w[1]));
+        CHECK(a.assurance == 0.75);
+        CHECK(same_number(w[2], target));
+        if (std::isinf(a.needed_pilot)) CHECK(w[3] == "inf");
+        else CHECK(same_number(w[3], a.needed_pilot));
+        CHECK(w[6] == name(a.status));
+      }
+      // Against the target: 7 targets from 1/4 to 2 times the report's, each strategy at logged 40;
+      // at 1 times, the very answer of the tables. Each point recomputed here by the answer code
+      // with that target (compute_study_answers), from the same stored rows.
+      const auto by_target = data_lines(rep / (base + "-needed-by-target.dat"));
+      REQUIRE(by_target.size() == 3 * 7);
+      for (const auto& w : by_target) {
+        CHECK(w[1] == "40");
+        const double t = std::strtod(w[2].c_str(), nullptr);
+        AnswerOverrides ov = o.overrides;
+        ov.targets[m] = t;
+        const auto at_t = compute_study_answers(study, rows, ov);
+        const AnswerRow& a = answer_of(at_t, sc, m, *parse_strategy(w[0]), 40);
+        if (std::isinf(a.needed_pilot)) CHECK(w[3] == "inf");
+        else CHECK(same_number(w[3], a.needed_pilot));
+        CHECK(w[6] == name(a.status));
+      }
+      std::vector<double> targets;
+      for (const auto& w : by_target) targets.push_back(std::strtod(w[2].c_str(), nullptr));
+      CHECK(std::count(targets.begin(), targets.end(), target) == 3);  // the report's own target, exactly
+      CHECK(*std::min_element(targets.begin(), targets.end()) == Approx(target / 4));
+      CHECK(*std::max_element(targets.begin(), targets.end()) == Approx(target * 2));
+      // The scripts: log scales, the report's target as the vertical line.
+      const std::string gp = text_of(rep / (base + "-needed-by-target.gp"));
+      CHECK(contains(gp, "set logscale x"));
+      CHECK(contains(gp, "set logscale y"));
+      CHECK(contains(gp, fmt::format("study_target = {}", target)));
+      CHECK(contains(gp, "yerrorlines"));
+      CHECK(contains(text_of(rep / (base + "-needed-by-logged.gp")), "set xlabel 'logged episodes'"));
+    }
+  (void)out;
+}
+
+TEST_CASE("report: report.html stands alone, embeds every figure and escapes a hostile name", "[report][html]") {
+  TempDir tmp;
+  const fs::path dir = copy_run(tmp.path() / "run");
+  // (The study reader refuses bidirectional controls in names; html_text's own test covers them.)
+  const std::string hostile = "<script>alert('x')</script> & \"Q\" dlrow <img src=http://e/x.png> ]]> &amp; \\";
+  Study study = io::load_study(dir / "study.resolved.yaml");
+  study.name = hostile;
+  write_study_files(dir, study);
+  const auto out = io::write_report(dir, options());
+  const std::string html = text_of(dir / "report" / "report.html");
+  // No external reference of any kind: nothing loaded from elsewhere, no stylesheet, no script.
+  CHECK_FALSE(contains(html, "src=\"http"));
+  CHECK_FALSE(contains(html, "src='http"));
+  CHECK_FALSE(contains(html, "href=\"http"));
+  CHECK_FALSE(contains(html, "<link"));
+  CHECK_FALSE(contains(html, "<script"));
+  CHECK_FALSE(contains(html, "url("));
+  CHECK_FALSE(contains(html, "@import"));
+  // The name only escaped (html_text: the bidi override replaced, & < > " ' as references).
+  CHECK(contains(html, "<h1>Report: " + io::html_text(hostile) + "</h1>"));
+  CHECK(contains(html, "&lt;script&gt;alert(&#39;x&#39;)&lt;/script&gt; &amp; &quot;Q&quot; dlrow &lt;img src=http://e/x.png&gt; ]]&gt; &amp;amp; \\"));
+  CHECK_FALSE(contains(html, "<img src=http"));
+  // Every figure embedded: its SVG, base64 in a data: URI.
+  REQUIRE(out.figures.size() == 16);
+  if (have_gnuplot())
+    for (const auto& f : out.figures) {
+      INFO(f.image);
+      CHECK(contains(html, "src=\"data:image/svg+xml;base64," + io::base64(text_of(dir / "report" / f.images[2])) + "\""));
+    }
+  // The methods paragraphs and the caution are on the page.
+  CHECK(contains(html, "<h2 id=\"methods\">Methods</h2>"));
+  CHECK(contains(html, io::html_text(io::methods_caution())));
+  // Read by an HTML parser outside the project (libxml2's, xmllint --html): one h1 holding the name as
+  // written (after printable_line), no script, link, iframe or object element, one img per figure,
+  // each src a data: URI.
+  if (const auto xmllint = io::find_program("xmllint")) {
+    auto xpath = [&](const std::string& expression) {
+      const auto r = io::run_child(*xmllint, {"--html", "--xpath", expression, (dir / "report" / "report.html").string()},
+                                   tmp.path());
+      REQUIRE(r.started);
+      // xmllint prints the result and a line feed
+      return !r.output.empty() && r.output.back() == '\n' ? r.output.substr(0, r.output.size() - 1) : r.output;
+    };
+    CHECK(xpath("count(//h1)") == "1");
+    CHECK(xpath("string(//h1)") == "Report: " + io::printable_line(hostile));
+    CHECK(xpath("count(//script|//link|//iframe|//object|//embed|//base)") == "0");
+    if (have_gnuplot()) {
+      CHECK(xpath("count(//img)") == std::to_string(out.figures.size()));
+      CHECK(xpath("count(//img[starts-with(@src, 'data:image/svg+xml;base64,')])") == std::to_string(out.figures.size()));
+    }
+    CHECK(xpath("count(//*[@href])") == "0");
+  } else {
+    WARN("xmllint is not installed (Debian: libxml2-utils): report.html is checked as text only");
+  }
 }

@@ -173,3 +173,65 @@ TEST_CASE("text_escape: the terminal tables show user text without control chara
   CHECK(contains(summary, "scenario 1: key" + kReplacement + "[2J=v1" + kReplacement + "]0;title" + kReplacement +
                               " \n"));
 }
+
+TEST_CASE("text_escape: html_text writes & < > \" ' as character references, after printable_line", "[text_escape][html]") {
+  // HTML Living Standard, sec. 13.5 (named character references &amp; &lt; &gt; &quot;) and
+  // 13.1.4 (numeric references: &#39; is U+0027); the five characters of rule 1 of the OWASP
+  // "Cross Site Scripting Prevention Cheat Sheet".
+  CHECK(io::html_text("plain text 42") == "plain text 42");
+  CHECK(io::html_text("<script>alert(1)</script>") == "&lt;script&gt;alert(1)&lt;/script&gt;");
+  CHECK(io::html_text("a & b") == "a &amp; b");
+  CHECK(io::html_text("&amp;") == "&amp;amp;");  // a reference in the text is shown, not taken
+  CHECK(io::html_text("\"d\" 'q'") == "&quot;d&quot; &#39;q&#39;");
+  CHECK(io::html_text("caf\xC3\xA9") == "caf\xC3\xA9");
+  // printable_line first: no line break, no ESC, no bidirectional override (Boucher and Anderson 2021).
+  CHECK(io::html_text("a\nb") == "a b");
+  CHECK(io::html_text("x\xE2\x80\xAEy") == "x" + kReplacement + "y");  // U+202E RIGHT-TO-LEFT OVERRIDE
+  CHECK(io::html_text("x\xE2\x81\xA6y") == "x" + kReplacement + "y");  // U+2066 LEFT-TO-RIGHT ISOLATE
+  CHECK(io::html_text("\x1b[31m") == kReplacement + "[31m");
+  // No character that can open a tag, end an attribute value or start a reference is left.
+  for (const std::string& text : {kHostile, std::string("\"'><&")}) {
+    const std::string h = io::html_text(text);
+    INFO(h);
+    CHECK(h.find_first_of("<>\"'") == std::string::npos);
+    for (std::size_t i = h.find('&'); i != std::string::npos; i = h.find('&', i + 1)) {
+      const bool reference = h.compare(i, 5, "&amp;") == 0 || h.compare(i, 4, "&lt;") == 0 ||
+                             h.compare(i, 4, "&gt;") == 0 || h.compare(i, 6, "&quot;") == 0 ||
+                             h.compare(i, 5, "&#39;") == 0;
+      CHECK(reference);
+    }
+  }
+}
+
+TEST_CASE("text_escape: an HTML parser reads html_text back as the text, in content and in attributes",
+          "[text_escape][html]") {
+  // Reference: libxml2's HTML parser (xmllint --html, Debian libxml2-utils), an implementation
+  // outside the project: the text it reads from the element and from a quoted attribute must be
+  // printable_line(text) exactly, and the page must hold no element but the ones written.
+  const auto xmllint = io::find_program("xmllint");
+  if (!xmllint) {
+    WARN("xmllint is not installed (Debian: libxml2-utils): html_text is checked as text only");
+    return;
+  }
+  dobudget::test::TempDir tmp;
+  const std::vector<std::string> texts = {kHostile, "<script>alert('x')</script> & \"quotes\"",
+                                          "\xE2\x80\xAE" "evil\xE2\x81\xA6 name", "a&amp;b &#60; &lt;"};
+  for (const std::string& text : texts) {
+    const std::string h = io::html_text(text);
+    const fs::path page = tmp.write("page.html", "<!DOCTYPE html><html><head><meta charset=\"utf-8\"><title>t</title>"
+                                                 "</head><body><p title=\"" + h + "\" lang='" + h + "'>" + h +
+                                                 "</p></body></html>\n");
+    auto xpath = [&](const std::string& expression) {
+      const auto r = io::run_child(*xmllint, {"--html", "--xpath", expression, page.string()}, tmp.path());
+      REQUIRE(r.started);
+      // xmllint prints the result and a line feed
+      return !r.output.empty() && r.output.back() == '\n' ? r.output.substr(0, r.output.size() - 1) : r.output;
+    };
+    INFO(h);
+    const std::string expected = io::printable_line(text);
+    CHECK(xpath("string(//p)") == expected);
+    CHECK(xpath("string(//p/@title)") == expected);
+    CHECK(xpath("string(//p/@lang)") == expected);
+    CHECK(xpath("count(//body//*)") == "1");
+  }
+}
