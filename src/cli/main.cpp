@@ -34,7 +34,8 @@ int main(int argc, char** argv) {
                          "  dobudget merge runs/part* --out runs/study   (combine the shards)\n"
                          "  dobudget report runs/default                 (figures and runs/default/report/report.md)\n"
                          "  dobudget answer runs/default --target model_kl=0.01 --assurance 0.9   (re-analysis, seconds)\n"
-                         "  dobudget draw configs/default.yaml --out envs   (write the synthetic environments)\n\n"
+                         "  dobudget draw configs/default.yaml --out envs   (write the synthetic environments)\n"
+                         "  dobudget fit episodes.csv --codebook codebook.yaml --out fit   (fit your own records)\n\n"
                          "Caution: ") +
              caution);
   app.require_subcommand(1);
@@ -81,6 +82,23 @@ int main(int argc, char** argv) {
   merge->add_option("--out", merge_args.out, "The complete run directory to write (new, empty, or of this study)")
       ->required();
 
+  FitArgs fit_args;
+  auto* fit = app.add_subcommand("fit", "Fit the regime-aware latent model to your episodes (CSV), choose the latent size, "
+                                        "and write DIR/{model.yaml, selection.csv, evidence.csv, fit.md}");
+  fit->add_option("episodes", fit_args.episodes, "Episodes file: episode,step,observation,action,regime (CSV)")->required();
+  fit->add_option("--codebook", fit_args.codebook, "Codebook (YAML): the order of the codes and a reward per observation")
+      ->type_name("FILE");
+  fit->add_option("--latent-states", fit_args.latent_states,
+                  "Latent size K (1 to 200), or auto (default): the size with the best held-out log-likelihood over "
+                  "episode folds, the smallest within one standard error")
+      ->type_name("K|auto");
+  fit->add_option("--max-latent-states", fit_args.max_latent_states, "Largest size auto tries, 1 to 200 (default 8)")->type_name("K");
+  fit->add_option("--folds", fit_args.folds, "Episode folds for the held-out log-likelihood, 2 to 100 (default 5; 0: none, with a given K)")
+      ->type_name("N");
+  fit->add_option("--restarts", fit_args.restarts, "EM starts per fit, 1 to 1000 (default 3)")->type_name("N");
+  fit->add_option("--seed", fit_args.seed, "Seed of the starts and of the folds (default 1)")->type_name("S");
+  fit->add_option("--out", fit_args.out, "Directory to write (default: fits/<episodes file name>)")->type_name("DIR");
+
   std::string report_dir;
   auto* report = app.add_subcommand("report", "Figures (gnuplot) and a report page, DIR/report/report.md, from a finished run");
   report->add_option("dir", report_dir, "Run directory")->required();
@@ -99,6 +117,7 @@ int main(int argc, char** argv) {
     if (*answer) return answer_command(answer_args);
     if (*merge) return merge_command(merge_args);
     if (*report) return report_command(report_dir);
+    if (*fit) return fit_command(fit_args);
   } catch (const io::InputError& e) {
     std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());
     return 2;
