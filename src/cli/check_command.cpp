@@ -11,6 +11,7 @@
 #include "core/running/unit.hpp"
 #include "io/machine_memory.hpp"
 #include "io/memory_messages.hpp"
+#include "io/records_study.hpp"
 #include "io/study_file.hpp"
 
 namespace dobudget::cli {
@@ -22,7 +23,8 @@ constexpr double max_calibration_seconds = 60.0;
 }  // namespace
 
 int check_command(const std::string& study_file) {
-  const Study study = io::load_study(study_file);
+  Study study = io::load_study(study_file);
+  io::prepare_records(study);  // worlds from records (issue 9): the fit runs here, before anything is estimated
   const int threads = static_cast<int>(std::max(1u, std::thread::hardware_concurrency()));
   const MemoryEstimate memory = estimate_memory(study, threads);
   io::refuse_memory_beyond(memory, io::machine_memory(), study_file);

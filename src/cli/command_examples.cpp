@@ -15,6 +15,7 @@ const std::vector<CommandExample>& command_examples() {
       {"answer", "dobudget answer runs/default --criterion mean", "the mean measure meets the target"},
       {"report", "dobudget report runs/default", "figures and runs/default/report/report.md"},
       {"draw", "dobudget draw configs/default.yaml --out envs", "write the synthetic environments as model files"},
+      {"fit", "dobudget fit episodes.csv --codebook codebook.yaml --out fit", "fit your own records, choose the latent size"},
   };
   return table;
 }

@@ -54,6 +54,20 @@ struct MergeArgs {
 };
 int merge_command(const MergeArgs& args);
 
+// Fit the regime-aware latent model to a team's episodes and write DIR/{model.yaml, selection.csv,
+// evidence.csv, fit.md} (fit_command.cpp).
+struct FitArgs {
+  std::string episodes;           // the episodes CSV
+  std::string codebook;           // empty: codes in order of first appearance
+  std::string latent_states;      // "auto" (or empty) or a whole number
+  std::string max_latent_states;  // largest size `auto` tries; empty: 8
+  std::string folds;              // episode folds for the held-out log-likelihood; empty: 5
+  std::string restarts;           // empty: 3
+  std::string seed;               // empty: 1
+  std::string out;                // empty: fits/<safe form of the file name>
+};
+int fit_command(const FitArgs& args);
+
 // Figures (gnuplot) and a report page in DIR/report/, from a finished run directory. --target and
 // --assurance are read as `answer` reads them (answer_overrides).
 struct ReportArgs {

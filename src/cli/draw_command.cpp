@@ -8,12 +8,14 @@
 #include "io/atomic_file.hpp"
 #include "io/file_name.hpp"
 #include "io/model_file.hpp"
+#include "io/records_study.hpp"
 #include "io/study_file.hpp"
 
 namespace dobudget::cli {
 
 int draw_command(const std::string& study_file, const std::string& out) {
-  const Study study = io::load_study(study_file);
+  Study study = io::load_study(study_file);
+  io::prepare_records(study);  // worlds from records (issue 9)
   const std::filesystem::path dir = out.empty() ? std::filesystem::path("environments") / io::safe_file_name(study.name) : std::filesystem::path(out);
   std::filesystem::create_directories(dir);
   for (const auto& sc : study.scenarios) {

@@ -73,6 +73,24 @@ int main(int argc, char** argv) {
   merge->add_option("--out", merge_args.out, "The complete run directory to write (new, empty, or of this study)")
       ->required();
 
+  FitArgs fit_args;
+  auto* fit = app.add_subcommand("fit", "Fit the regime-aware latent model to your episodes (CSV), choose the latent size, "
+                                        "and write DIR/{model.yaml, selection.csv, evidence.csv, fit.md}");
+  fit->add_option("episodes", fit_args.episodes, "Episodes file: episode,step,observation,action,regime (CSV)")->required();
+  fit->add_option("--codebook", fit_args.codebook, "Codebook (YAML): the order of the codes and a reward per observation")
+      ->type_name("FILE");
+  fit->add_option("--latent-states", fit_args.latent_states,
+                  "Latent size K (1 to 200), or auto (default): the size with the best held-out log-likelihood over "
+                  "episode folds, the smallest within one standard error")
+      ->type_name("K|auto");
+  fit->add_option("--max-latent-states", fit_args.max_latent_states, "Largest size auto tries, 1 to 200 (default 8)")->type_name("K");
+  fit->add_option("--folds", fit_args.folds, "Episode folds for the held-out log-likelihood, 2 to 100 (default 5; 0: none, with a given K)")
+      ->type_name("N");
+  fit->add_option("--restarts", fit_args.restarts, "EM starts per fit, 1 to 1000 (default 3)")->type_name("N");
+  fit->add_option("--seed", fit_args.seed, "Seed of the starts and of the folds (default 1)")->type_name("S");
+  fit->add_option("--out", fit_args.out, "Directory to write (default: fits/<episodes file name>)")->type_name("DIR");
+
+
   ReportArgs report_args;
   auto* report = app.add_subcommand(
       "report", "Figures (gnuplot: PNG, PDF, SVG), DIR/report/report.md, report.html and methods.txt, from a finished run");
@@ -107,6 +125,7 @@ int main(int argc, char** argv) {
     if (*merge) return merge_command(merge_args);
     if (*report) return report_command(report_args);
     if (*reference) return reference_command(reference_page);
+    if (*fit) return fit_command(fit_args);
   } catch (const io::InputError& e) {
     std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());
     return 2;

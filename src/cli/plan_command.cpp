@@ -24,6 +24,7 @@
 #include "io/file_name.hpp"
 #include "io/machine_memory.hpp"
 #include "io/memory_messages.hpp"
+#include "io/records_study.hpp"
 #include "io/run_directory.hpp"
 #include "io/study_file.hpp"
 #include "io/summary_table.hpp"
@@ -34,6 +35,10 @@
 
 namespace dobudget::cli {
 namespace {
+
+// Progress of the records' fit (records_study.hpp), on stderr like the other progress messages.
+void records_progress(const std::string& line) { std::fprintf(stderr, "%s\n", line.c_str()); }
+
 
 std::atomic<bool> interrupted{false};
 extern "C" void on_interrupt(int) { interrupted = true; }
@@ -201,6 +206,7 @@ int plan_on_ranks(const PlanArgs& args, const mpi::Session& session) {
   std::exception_ptr error;
   try {
     study = io::load_study(args.study);
+    io::prepare_records(*study);  // every rank fits the records alike (deterministic: records_study.hpp)
     resolved = io::resolved_yaml(*study);
     // --threads is per rank; by default the ranks on a node share its cores.
     opt = plan_options(args, *study, std::max(1, default_threads() / session.ranks_on_this_node()));
@@ -253,7 +259,8 @@ int plan_command(const PlanArgs& args) {
   const mpi::Session session;  // MPI_Init_thread here, MPI_Finalize on the way out
   if (session.size() > 1) return plan_on_ranks(args, session);
 #endif
-  const Study study = io::load_study(args.study);
+  Study study = io::load_study(args.study);
+  io::prepare_records(study, {}, args.quiet ? nullptr : records_progress);  // worlds from records (issue 9)
   const std::string resolved = io::resolved_yaml(study);
   io::PlanOptions opt = plan_options(args, study, default_threads());
   check_what_it_takes(args, study, opt, !args.quiet);

@@ -40,7 +40,8 @@ std::string records_answer_text(const Study& study, const std::vector<AnswerRow>
     else if (std::isinf(a.needed_pilot)) need = "unreachable";
     else {
       const double total = std::ceil(a.needed_pilot);
-      need = fmt::format("{} in total, {} more", total, std::max(0.0, total - r.pilot_episodes));
+      const char* bound = a.status == AnswerStatus::met_at_smallest && a.needed_pilot > 0.0 ? "at most " : "";
+      need = fmt::format("{}{} in total, {}{} more", bound, total, bound, std::max(0.0, total - r.pilot_episodes));
     }
     const std::string scenario =
         study.scenarios.size() > 1 ? fmt::format("scenario {}, ", a.scenario) : std::string();

@@ -13,6 +13,8 @@
 #include <vector>
 
 #include "io/model_file.hpp"
+#include "core/fitting/model_selection.hpp"
+#include "io/records_study.hpp"
 #include "io/study_keys.hpp"
 #include "io/text_escape.hpp"
 #include "io/yaml_input.hpp"
@@ -30,6 +32,12 @@ using input::Reader;
 // The keys of each mapping and the sweepable keys come from the key table (study_keys.hpp).
 const std::vector<std::string> top_keys = study_section_keys("");
 const std::vector<std::string> environment_keys = study_section_keys("environment");
+// The keys only a study from records (environment.data) takes, and the facts the resolved study
+// writes of them (environment.records: records_study.hpp).
+const std::vector<std::string> records_only_keys{"codebook", "latent_states", "prior_concentration", "records"};
+const std::vector<std::string> records_fact_keys{"digest",            "logged_episodes", "pilot_episodes",
+                                                 "longest_episode",   "observation_codes", "action_codes",
+                                                 "rewards",           "chosen_latent_states"};
 // The environment keys of the synthetic family, refused together with a given model.
 const std::vector<std::string> family_keys{"states", "actions", "observations", "dynamics_concentration",
                                            "observation_noise"};
@@ -71,6 +79,10 @@ std::vector<std::pair<std::string, std::string>> sweep_refusals() {
     out.emplace_back(k, "is a setting of the whole study, not of a scenario, and cannot be swept");
   out.emplace_back("environment.file", "cannot be swept: a study has one model file (write one study per model)");
   out.emplace_back("environment.model", "cannot be swept: it is a mapping, and a study has one model");
+  out.emplace_back("environment.data", "cannot be swept: a study has one set of records (write one study per record)");
+  out.emplace_back("environment.codebook", "cannot be swept: a study has one set of records");
+  out.emplace_back("environment.latent_states", "cannot be swept: the records are fitted once per study");
+  out.emplace_back("environment.records", "cannot be swept: it is what the records are");
   for (const char* k : {"budgets.logged", "budgets.pilot", "strategies", "measures"})
     out.emplace_back(k, "is a list, and only single-valued keys can be swept (every scenario uses the whole list)");
   const std::pair<const char*, const char*> sections[] = {
@@ -154,6 +166,9 @@ constexpr int max_rollouts = 10000000;
 constexpr int max_belief_points = 10000;
 constexpr int max_exact_histories = 1000000000;
 const Range prior_range{"in [0, 1e100]", [](double x) { return x >= 0.0 && x <= 1e100; }};
+// environment.prior_concentration: a Dirichlet parameter (posterior_world.hpp), positive; at most
+// 1e100 so that counts + c and the Gamma draws stay finite.
+const Range concentration_range{"in (0, 1e100]", [](double x) { return x > 0.0 && x <= 1e100; }};
 
 // ---- Reading ------------------------------------------------------------------------------------
 
@@ -218,7 +233,7 @@ class StudyParser {
       }
       scenario.settings = settings(top);
       const EnvironmentSettings& env = scenario.settings.environment;
-      units += static_cast<long long>(env.given ? 1 : env.draws) * scenario.settings.replicates;
+      units += static_cast<long long>(env.given ? 1 : env.draws) * scenario.settings.replicates;  // records: draws
       if (units > max_units) {
         const Located at = units_driver(top, scenario.settings, total);
         in_.fail(at,
@@ -322,7 +337,10 @@ class StudyParser {
     uniform_policy(section(top, "pilot", pilot_keys));
 
     const Section budgets = section(top, "budgets", budget_keys);
-    s.logged_budgets = budget_list(budgets, "logged", s.logged_budgets, 0, max_budget);
+    // From records, the logged budget defaults to the number of logged episodes they hold.
+    const std::vector<int> logged_default =
+        s.environment.records ? std::vector<int>{s.environment.records->logged_episodes} : s.logged_budgets;
+    s.logged_budgets = budget_list(budgets, "logged", logged_default, 0, max_budget);
     s.pilot_budgets = budget_list(budgets, "pilot", s.pilot_budgets, 0, max_budget);
     // A pilot budget of 0 fits the strategies that use logged data on logged data alone, so it
     // needs logged episodes (pilot-only with no data counts as not meeting the target: unit.hpp).
@@ -334,10 +352,18 @@ class StudyParser {
     s.replicates = whole(top, "replicates", s.replicates, 1, max_replicates);
     s.strategies = name_list(top, "strategies", "strategy", s.strategies, strategy_names(), parse_strategy);
     s.measures = name_list(top, "measures", "measure", s.measures, measure_names(), parse_measure);
+    if (s.environment.records && !s.environment.records->rewards &&
+        std::find(s.measures.begin(), s.measures.end(), Measure::return_gap) != s.measures.end())
+      in_.fail(get(top, "measures") ? *get(top, "measures") : *top.find("environment"),
+               "return_gap needs a reward for every observation code, and the records have none: give "
+               "environment.codebook with `rewards: {code: value, ...}`, or measure model_kl only");
 
     const Section fit = section(top, "fit", fit_keys);
     const int states = s.environment.given ? s.environment.given->model.states : s.environment.family.states;
     s.fit.latent_states = whole(fit, "latent_states", states, 1, max_model_size);
+    // From records with latent_states: auto, fit.latent_states not written follows the chosen size
+    // (records_study.hpp sets it once the records are fitted).
+    if (s.environment.records) s.environment.records->fit_follows = !get(fit, "latent_states") && s.environment.records->latent_states == 0;
     s.fit.restarts = whole(fit, "restarts", s.fit.restarts, 1, max_restarts);
     s.fit.max_restarts = whole(fit, "max_restarts", s.fit.max_restarts, 1, max_restarts);
     s.fit.max_iterations = whole(fit, "max_iterations", s.fit.max_iterations, 1, max_iterations_cap);
@@ -361,6 +387,10 @@ class StudyParser {
 
   EnvironmentSettings environment(const Section& top) {
     const Section env = section(top, "environment", environment_keys);
+    if (const std::optional<Located> data = get(env, "data")) return records_environment(env, *data);
+    for (const std::string& k : records_only_keys)
+      if (const std::optional<Located> v = get(env, k))
+        in_.fail(*v, "is a setting of a study from records and needs environment.data (the episodes file)");
     EnvironmentSettings e;
     e.horizon = whole(env, "horizon", e.horizon, 1, max_horizon);
     e.discount = number(env, "discount", e.discount, discount_range);
@@ -392,6 +422,97 @@ class StudyParser {
     e.given->model.horizon = e.horizon;
     e.given->model.discount = e.discount;
     return e;
+  }
+
+  // environment: { data: episodes.csv, codebook: codebook.yaml, draws: 16, latent_states: auto,
+  //                prior_concentration: 1, horizon: <longest episode>, discount: 1 } (records_study.hpp).
+  // The records are read once, here, unless the study carries their facts (environment.records, as
+  // a resolved study does): then the files are read, and checked against the facts, only when
+  // worlds are needed (prepare_records).
+  EnvironmentSettings records_environment(const Section& env, const Located& data) {
+    for (const char* k : {"file", "model"})
+      if (const std::optional<Located> v = get(env, k)) in_.fail(*v, "give either environment.data or environment.file/model, not both");
+    for (const std::string& k : family_keys)
+      if (const std::optional<Located> v = get(env, k))
+        in_.fail(*v, "is a setting of the synthetic family and cannot be combined with environment.data: the records "
+                     "fix the sizes");
+    EnvironmentSettings e;
+    RecordsSettings r;
+    // With the facts written (a resolved study), the files are needed only when worlds are drawn.
+    const bool read_now = !get(env, "records");
+    r.data = resolved_path(data, "episodes file", read_now);
+    if (const std::optional<Located> v = get(env, "codebook")) r.codebook = resolved_path(*v, "codebook", read_now);
+    if (const std::optional<Located> v = get(env, "latent_states")) {
+      if (in_.text(*v) != "auto") {
+        r.latent_states = in_.whole_int(*v, 1);
+        if (r.latent_states > max_model_size)
+          in_.fail(*v, fmt::format("must be auto or at most {} (the largest the computation holds), got {}", max_model_size,
+                                   r.latent_states));
+      }
+    }
+    r.concentration = number(env, "prior_concentration", r.concentration, concentration_range);
+    if (!records_) records_ = records_facts(env, r);
+    r.digest = records_->digest;
+    r.logged_episodes = records_->logged_episodes;
+    r.pilot_episodes = records_->pilot_episodes;
+    r.rewards = records_->rewards;
+    r.longest_episode = records_->longest_episode;
+    if (records_->logged_episodes + records_->pilot_episodes == 0) in_.fail(data, "the records hold no episodes");
+    if (records_->action_codes < 1 || records_->longest_episode < 1)
+      in_.fail(data, "no episode of the records takes an action, so there is nothing to fit");
+    e.horizon = whole(env, "horizon", std::min(records_->longest_episode, max_horizon), 1, max_horizon);
+    e.discount = number(env, "discount", e.discount, discount_range);
+    e.draws = whole(env, "draws", 16, 1, max_draws);
+    // The family's sizes stand for the records' (estimates, tables): the latent size, or the largest
+    // that auto tries until the records are fitted.
+    e.family.states = r.latent_states > 0                 ? r.latent_states
+                      : records_->chosen_latent_states > 0 ? records_->chosen_latent_states
+                                                           : SelectionSettings{}.sizes.back();
+    r.chosen_latent_states = records_->chosen_latent_states;
+    e.family.actions = records_->action_codes;
+    e.family.observations = records_->observation_codes;
+    e.records = std::move(r);
+    return e;
+  }
+
+  // The facts of the records: from environment.records when the study carries them, else read
+  // from the files.
+  RecordsFacts records_facts(const Section& env, const RecordsSettings& r) const {
+    if (const std::optional<Located> v = get(env, "records")) {
+      const Section facts{v->key, in_.entries(*v, records_fact_keys)};
+      RecordsFacts f;
+      for (const std::string& k : records_fact_keys)
+        if (!facts.find(k) && k != "chosen_latent_states") in_.fail(*v, fmt::format("is missing `{}` (environment.records is written by dobudget: "
+                                                     "leave it out and the records are read)", k));
+      f.digest = in_.text(*facts.find("digest"));
+      f.logged_episodes = whole(facts, "logged_episodes", 0, 0, max_budget);
+      f.pilot_episodes = whole(facts, "pilot_episodes", 0, 0, max_budget);
+      f.longest_episode = whole(facts, "longest_episode", 0, 0, max_horizon);
+      f.observation_codes = whole(facts, "observation_codes", 1, 1, max_model_size);
+      f.action_codes = whole(facts, "action_codes", 1, 1, max_model_size);
+      const std::string rw = in_.text(*facts.find("rewards"));
+      if (rw != "true" && rw != "false") in_.fail(*facts.find("rewards"), "must be true or false");
+      f.rewards = rw == "true";
+      f.chosen_latent_states = whole(facts, "chosen_latent_states", 0, 1, max_model_size);
+      return f;
+    }
+    const EpisodeRecords rec = read_records(r.data, r.codebook);
+    return facts_of(rec, records_digest(r.data, r.codebook));
+  }
+
+  // A file named in the study, resolved relative to the study file's directory (absolute, so that
+  // the resolved study in a run directory names the same file).
+  std::string resolved_path(const Located& value, std::string_view what, bool must_exist) const {
+    const std::string written = in_.text(value);
+    if (written.empty()) in_.fail(value, fmt::format("must name the {}", what));
+    fs::path path(written);
+    if (path.is_relative()) path = base_dir_ / path;
+    path = fs::absolute(path).lexically_normal();
+    std::error_code ec;
+    if (must_exist && !fs::is_regular_file(path, ec))
+      in_.fail(value, fmt::format("cannot read the {} '{}': {}", what, path.string(),
+                                  fs::exists(path, ec) ? "not a regular file" : "no such file"));
+    return path.string();
   }
 
   // The model named by environment.file, resolved relative to the study file's directory.
@@ -519,6 +640,7 @@ class StudyParser {
   fs::path base_dir_;
   std::map<std::string, Located> overrides_;  // swept key path -> value, for the scenario being read
   std::optional<Environment> given_;          // the given model, read once (it cannot be swept)
+  std::optional<RecordsFacts> records_;       // the records' facts, read once (they cannot be swept)
 };
 
 // ---- Writing ------------------------------------------------------------------------------------
@@ -603,6 +725,27 @@ std::string resolved_yaml(const Study& study) {
     put_int("environment.draws", "draws", e.draws);
     out << YAML::Key << "model" << YAML::Value;
     emit_model(out, *e.given);
+  } else if (e.records) {
+    const RecordsSettings& r = *e.records;
+    if (!r.posterior && r.chosen_latent_states == 0)
+      throw std::logic_error("resolved_yaml: the records have not been fitted (records_study.hpp: prepare_records)");
+    out << YAML::Key << "data" << YAML::Value << YAML::DoubleQuoted << r.data;
+    if (!r.codebook.empty()) out << YAML::Key << "codebook" << YAML::Value << YAML::DoubleQuoted << r.codebook;
+    out << YAML::Key << "latent_states" << YAML::Value << (r.latent_states > 0 ? fmt::format("{}", r.latent_states) : "auto");
+    put_number("environment.prior_concentration", "prior_concentration", r.concentration);
+    put_int("environment.horizon", "horizon", e.horizon);
+    put_number("environment.discount", "discount", e.discount);
+    put_int("environment.draws", "draws", e.draws);
+    out << YAML::Key << "records" << YAML::Value << YAML::BeginMap;
+    out << YAML::Key << "digest" << YAML::Value << YAML::DoubleQuoted << r.digest;
+    out << YAML::Key << "logged_episodes" << YAML::Value << fmt::format("{}", r.logged_episodes);
+    out << YAML::Key << "pilot_episodes" << YAML::Value << fmt::format("{}", r.pilot_episodes);
+    out << YAML::Key << "longest_episode" << YAML::Value << fmt::format("{}", r.longest_episode);
+    out << YAML::Key << "observation_codes" << YAML::Value << fmt::format("{}", e.family.observations);
+    out << YAML::Key << "action_codes" << YAML::Value << fmt::format("{}", e.family.actions);
+    out << YAML::Key << "rewards" << YAML::Value << (r.rewards ? "true" : "false");
+    out << YAML::Key << "chosen_latent_states" << YAML::Value << fmt::format("{}", e.family.states);
+    out << YAML::EndMap;
   } else {
     put_int("environment.states", "states", e.family.states);
     put_int("environment.actions", "actions", e.family.actions);

@@ -39,6 +39,20 @@ const std::vector<StudyKey>& study_keys() {
        "a given environment written inline (the form `study.resolved.yaml` uses); excludes `file` and the family "
        "keys"},
 
+      {"environment.data", "text (path)", "none", "a readable episodes file (CSV), relative to the study file's folder",
+       K::none,
+       "plan from the team's records: each draw is a plausible world sampled from the regime-aware fit of these "
+       "episodes; excludes `file`, `model` and the family keys"},
+      {"environment.codebook", "text (path)", "none", "a readable codebook (YAML); only with `data`", K::none,
+       "the order of the observation and action codes and a reward per observation code"},
+      {"environment.latent_states", "whole number or auto", "auto", "auto, or 1 .. 200; only with `data`", K::none,
+       "latent size of the fit to the records; auto chooses it by held-out log-likelihood over episode folds"},
+      {"environment.prior_concentration", "number", "1", "in (0, 1e100]; only with `data`", K::number,
+       "Dirichlet concentration added to the records' expected counts when plausible worlds are drawn: how widely "
+       "the worlds differ where the records are silent"},
+      {"environment.records", "mapping", "none", "written by dobudget in study.resolved.yaml; only with `data`",
+       K::none, "facts of the records (digest, counts, sizes) that tie a run to the files it was planned from"},
+
       {"logging", "section", "", "a mapping of the keys below", K::none,
        "the logged regime: how the decision-makers who saw the hidden state chose actions"},
       {"logging.privilege", "number", "0.9", "in [0, 1]", K::number,
