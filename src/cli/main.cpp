@@ -34,7 +34,8 @@ int main(int argc, char** argv) {
                          "  dobudget merge runs/part* --out runs/study   (combine the shards)\n"
                          "  dobudget report runs/default                 (figures and runs/default/report/report.md)\n"
                          "  dobudget answer runs/default --target model_kl=0.01 --assurance 0.9   (re-analysis, seconds)\n"
-                         "  dobudget draw configs/default.yaml --out envs   (write the synthetic environments)\n\n"
+                         "  dobudget draw configs/default.yaml --out envs   (write the synthetic environments)\n"
+                         "  dobudget simulate configs/default.yaml --logged 500 --pilot 20 --out episodes.csv\n\n"
                          "Caution: ") +
              caution);
   app.require_subcommand(1);
@@ -81,6 +82,26 @@ int main(int argc, char** argv) {
   merge->add_option("--out", merge_args.out, "The complete run directory to write (new, empty, or of this study)")
       ->required();
 
+  SimulateArgs simulate_args;
+  auto* simulate = app.add_subcommand(
+      "simulate", "Write episodes of one world of a study as an episodes file (CSV), the format dobudget imports");
+  simulate->add_option("study", simulate_args.study, "Study file (YAML); its first scenario when it sweeps")->required();
+  simulate->add_option("--logged", simulate_args.logged, "Logged episodes, from the world's logging policy (0 to 10^7)")
+      ->type_name("N")
+      ->required();
+  simulate->add_option("--pilot", simulate_args.pilot, "Pilot episodes, from the pilot policy (default 0)")->type_name("M");
+  simulate->add_option("--draw", simulate_args.draw, "World number K, 0 to environment.draws - 1 (default 0): the world `draw` and `plan` make")
+      ->type_name("K");
+  simulate->add_option("--seed", simulate_args.seed,
+                       "Seed of the episodes only (default: the study's seed); the world stays the study's draw K")
+      ->type_name("S");
+  simulate->add_option("--out", simulate_args.out, "Episodes file to write (CSV: episode,step,observation,action,regime)")
+      ->type_name("FILE")
+      ->required();
+  simulate->add_option("--codebook-out", simulate_args.codebook_out,
+                       "Also write the codebook (YAML: codes o0.. and a0.., the world's reward per observation)")
+      ->type_name("FILE");
+
   std::string report_dir;
   auto* report = app.add_subcommand("report", "Figures (gnuplot) and a report page, DIR/report/report.md, from a finished run");
   report->add_option("dir", report_dir, "Run directory")->required();
@@ -99,6 +120,7 @@ int main(int argc, char** argv) {
     if (*answer) return answer_command(answer_args);
     if (*merge) return merge_command(merge_args);
     if (*report) return report_command(report_dir);
+    if (*simulate) return simulate_command(simulate_args);
   } catch (const io::InputError& e) {
     std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());
     return 2;
