@@ -15,6 +15,8 @@ const std::vector<CommandExample>& command_examples() {
       {"answer", "dobudget answer runs/default --criterion mean", "the mean measure meets the target"},
       {"report", "dobudget report runs/default", "figures and runs/default/report/report.md"},
       {"draw", "dobudget draw configs/default.yaml --out envs", "write the synthetic environments as model files"},
+      {"simulate", "dobudget simulate configs/default.yaml --logged 500 --pilot 20 --out episodes.csv",
+       "episodes of world 0 in the format dobudget imports"},
       {"fit", "dobudget fit episodes.csv --codebook codebook.yaml --out fit", "fit your own records, choose the latent size"},
   };
   return table;

@@ -54,6 +54,18 @@ struct MergeArgs {
 };
 int merge_command(const MergeArgs& args);
 
+// Episodes of world `draw` of a study, in the episodes-file format (io/episode_file.hpp).
+struct SimulateArgs {
+  std::string study;
+  std::string logged;        // N episodes from the world's logging policy
+  std::string pilot;         // empty: 0
+  std::string draw;          // empty: 0
+  std::string seed;          // empty: the study's seed
+  std::string out;           // the episodes file
+  std::string codebook_out;  // empty: none written
+};
+int simulate_command(const SimulateArgs& args);
+
 // Fit the regime-aware latent model to a team's episodes and write DIR/{model.yaml, selection.csv,
 // evidence.csv, fit.md} (fit_command.cpp).
 struct FitArgs {

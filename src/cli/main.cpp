@@ -73,6 +73,27 @@ int main(int argc, char** argv) {
   merge->add_option("--out", merge_args.out, "The complete run directory to write (new, empty, or of this study)")
       ->required();
 
+  SimulateArgs simulate_args;
+  auto* simulate = app.add_subcommand(
+      "simulate", "Write episodes of one world of a study as an episodes file (CSV), the format dobudget imports");
+  simulate->add_option("study", simulate_args.study, "Study file (YAML); its first scenario when it sweeps")->required();
+  simulate->add_option("--logged", simulate_args.logged, "Logged episodes, from the world's logging policy (0 to 10^7)")
+      ->type_name("N")
+      ->required();
+  simulate->add_option("--pilot", simulate_args.pilot, "Pilot episodes, from the pilot policy (default 0)")->type_name("M");
+  simulate->add_option("--draw", simulate_args.draw, "World number K, 0 to environment.draws - 1 (default 0): the world `draw` and `plan` make")
+      ->type_name("K");
+  simulate->add_option("--seed", simulate_args.seed,
+                       "Seed of the episodes only (default: the study's seed); the world stays the study's draw K")
+      ->type_name("S");
+  simulate->add_option("--out", simulate_args.out, "Episodes file to write (CSV: episode,step,observation,action,regime)")
+      ->type_name("FILE")
+      ->required();
+  simulate->add_option("--codebook-out", simulate_args.codebook_out,
+                       "Also write the codebook (YAML: codes o0.. and a0.., the world's reward per observation)")
+      ->type_name("FILE");
+
+
   FitArgs fit_args;
   auto* fit = app.add_subcommand("fit", "Fit the regime-aware latent model to your episodes (CSV), choose the latent size, "
                                         "and write DIR/{model.yaml, selection.csv, evidence.csv, fit.md}");
@@ -126,6 +147,7 @@ int main(int argc, char** argv) {
     if (*report) return report_command(report_args);
     if (*reference) return reference_command(reference_page);
     if (*fit) return fit_command(fit_args);
+    if (*simulate) return simulate_command(simulate_args);
   } catch (const io::InputError& e) {
     std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());
     return 2;
