@@ -1,6 +1,8 @@
 // dobudget check: validate a study, print it resolved, count units and fits, estimate the memory
 // and the cost. A study whose estimated peak memory exceeds this machine's is refused (exit 2,
 // the keys that drive it named), before anything is calibrated.
+#include <fmt/format.h>
+
 #include <algorithm>
 #include <cstdio>
 #include <thread>
@@ -44,6 +46,15 @@ int check_command(const std::string& study_file) {
   const CostBound bound = bound_cost(study, units);
   std::printf("# cost from counts (what `plan` states and limits): about %.3g core-hours, at most %.3g\n",
               bound.core_seconds / 3600.0, bound.max_core_seconds / 3600.0);
+  if (study.precision) {
+    // Range mode (precision_search.hpp): the figures above are round 1's, the coarse grid.
+    const ScenarioSettings& s = study.scenarios.front().settings;
+    std::printf("# range mode: round 1 simulates pilot budgets [%s]; later rounds add budgets, draws or replicates "
+                "until every answer is within +-%g%% or the next round would pass precision.max_core_hours: the whole "
+                "run costs from about %.3g to %.4g core-hours (from counts; --max-core-hours also caps it)\n",
+                fmt::format("{}", fmt::join(s.pilot_budgets, ", ")).c_str(), 100.0 * study.precision->relative,
+                bound.core_seconds / 3600.0, std::max(bound.core_seconds / 3600.0, study.precision->max_core_hours));
+  }
 
   double calibration = 0.0;  // bound on the calibration's own time
   for (const Scenario& sc : study.scenarios) calibration += bound_fit_cost(sc.settings, 1000.0).core_seconds;

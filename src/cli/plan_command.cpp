@@ -6,6 +6,7 @@
 #include <unistd.h>
 
 #include <algorithm>
+#include <cmath>
 #include <atomic>
 #include <csignal>
 #include <cstdio>
@@ -25,6 +26,7 @@
 #include "io/machine_memory.hpp"
 #include "io/memory_messages.hpp"
 #include "io/records_study.hpp"
+#include "io/precision_run.hpp"
 #include "io/run_directory.hpp"
 #include "io/study_file.hpp"
 #include "io/summary_table.hpp"
@@ -195,6 +197,81 @@ int plan_and_report(const Study& study, const std::string& resolved, const io::P
   return 0;
 }
 
+// Range mode (budgets.pilot: { from, to } and `precision`; precision_run.hpp): refuses shards
+// (each round depends on the answers of the one before, so no shard can choose its own), and a
+// cap below the first round's estimated cost.
+void check_range_mode(const PlanArgs& args, const Study& study, const io::PlanOptions& opt) {
+  if (opt.shard && opt.shard->count > 1)
+    throw BadInput("--shard: this study has `precision` (budgets.pilot as a range: the range mode), which runs in "
+                   "rounds, each chosen from the answers of the round before, so it cannot be split into shards; run "
+                   "it in one process (--threads), or give budgets.pilot as a list to use shards");
+  const double cap = std::min(study.precision->max_core_hours, core_hour_limit(args));
+  const double first = io::first_round_core_seconds(study) / 3600.0;
+  if (first > cap)
+    throw BadInput(fmt::format("precision.max_core_hours: the first round alone (the coarse grid of budgets.pilot) is "
+                               "estimated at about {:.2g} core-hours, above the cap of {:.4g} core-hours; raise "
+                               "precision.max_core_hours (and --max-core-hours), or use fewer draws or replicates",
+                               first, cap));
+}
+
+// Runs a range-mode study in rounds and prints the last round's results and answer, and which
+// answers met the precision and why.
+int plan_range_and_report(const PlanArgs& args, const Study& study, const std::string& resolved,
+                          const io::PlanOptions& opt) {
+  const bool tty = ::isatty(::fileno(stderr)) != 0;
+  const double cap = std::min(study.precision->max_core_hours, core_hour_limit(args));
+  if (!args.quiet)
+    std::fprintf(stderr,
+                 "dobudget plan: study '%s' in range mode: pilot budgets from %d to %d, precision +-%g%%, at most %.4g "
+                 "core-hours; %d thread(s), writing %s\n",
+                 io::printable_line(study.name).c_str(), study.scenarios.front().settings.pilot_range->from,
+                 study.scenarios.front().settings.pilot_range->to, 100.0 * study.precision->relative, cap, opt.threads,
+                 opt.out.string().c_str());
+  const auto on_round = [&](const io::RoundSummary& r) {
+    if (args.quiet) return;
+    if (tty) std::fprintf(stderr, "\n");
+    std::fprintf(stderr, "round %d: added pilot budgets [%s], draws x%d, replicates x%d: %zu units, %lld fits, about %.2g core-hours%s\n",
+                 r.round, fmt::format("{}", fmt::join(r.added, ", ")).c_str(), r.draws_scale, r.replicates_scale, r.units,
+                 r.fits, r.estimated_core_seconds / 3600.0,
+                 r.units_resumed ? fmt::format(" ({} units resumed)", r.units_resumed).c_str() : "");
+  };
+  const io::PrecisionOutcome outcome = io::plan_precision_study(study, resolved, opt, cap, on_round);
+  if (tty && !args.quiet) std::fprintf(stderr, "\n");
+  if (!outcome.complete) {
+    std::fprintf(stderr,
+                 "stopped: %zu of %zu units of round %zu are finished and recorded in %s/units.journal.\n"
+                 "Run the same command again to go on from there.\n",
+                 outcome.units_done, outcome.units_total, outcome.rounds.size(), outcome.round_dir.string().c_str());
+    return 130;
+  }
+  std::printf("%s", io::format_summary(outcome.final_study, outcome.rows).c_str());
+  std::printf("\n%s", io::format_answer_table(outcome.answers, &outcome.final_study).c_str());
+  std::printf("\nprecision (+-%g%% of the need, half-width over value): %s\n", 100.0 * study.precision->relative,
+              outcome.stopped_because.c_str());
+  for (const PrecisionVerdict& v : outcome.verdicts) {
+    const AnswerRow& r = v.row;
+    std::printf("  %s%s %s, logged %d: %s [%s, %s], +-%s: %s\n",
+                study.scenarios.size() > 1 ? fmt::format("scenario {}, ", r.scenario).c_str() : "",
+                std::string(name(r.measure)).c_str(), std::string(name(r.strategy)).c_str(), r.logged,
+                fmt::format("{:.4g}", r.needed_pilot).c_str(), fmt::format("{:.4g}", r.low).c_str(),
+                fmt::format("{:.4g}", r.high).c_str(),
+                std::isinf(v.half_width) ? "inf" : fmt::format("{:.1f}%", 100.0 * v.half_width).c_str(),
+                v.met ? "met" : ("not met: " + v.why).c_str());
+  }
+  long long fits = 0;
+  double estimated = 0.0;
+  for (const auto& r : outcome.rounds) {
+    fits += r.fits;
+    estimated += r.estimated_core_seconds;
+  }
+  std::printf("\nrun directory: %s (runs.csv, answer.csv, answer.md, precision.csv, manifest.json, round-1..%zu); "
+              "%zu rounds, %lld fits computed (about %.2g core-hours estimated), %.1f s\n",
+              opt.out.string().c_str(), outcome.rounds.size(), outcome.rounds.size(), fits, estimated / 3600.0,
+              outcome.seconds);
+  std::printf("\n%s\n", caution);
+  return 0;
+}
+
 #ifdef DOBUDGET_WITH_MPI
 // mpirun -n P, P > 1. Every rank loads the study and agrees that all could before any work starts
 // (a bad study is reported once, by rank 0, with exit code 2 on every rank; a rank that alone
@@ -210,6 +287,10 @@ int plan_on_ranks(const PlanArgs& args, const mpi::Session& session) {
     resolved = io::resolved_yaml(*study);
     // --threads is per rank; by default the ranks on a node share its cores.
     opt = plan_options(args, *study, std::max(1, default_threads() / session.ranks_on_this_node()));
+    if (study->precision)
+      throw BadInput("precision: a range-mode study runs in rounds, each chosen from the answers of the round "
+                     "before; it is not run on MPI ranks (yet): run it with one process (--threads), or give "
+                     "budgets.pilot as a list");
     check_what_it_takes(args, *study, opt, session.rank() == 0 && !args.quiet);
   } catch (...) {
     error = std::current_exception();
@@ -263,8 +344,10 @@ int plan_command(const PlanArgs& args) {
   io::prepare_records(study, {}, args.quiet ? nullptr : records_progress);  // worlds from records (issue 9)
   const std::string resolved = io::resolved_yaml(study);
   io::PlanOptions opt = plan_options(args, study, default_threads());
+  if (study.precision) check_range_mode(args, study, opt);
   check_what_it_takes(args, study, opt, !args.quiet);
   catch_interruptions();
+  if (study.precision) return plan_range_and_report(args, study, resolved, opt);
   return plan_and_report(study, resolved, opt, args.quiet, 1);
 }
 

@@ -6,6 +6,7 @@
 #include <limits>
 #include <optional>
 
+#include "core/answer/precision_search.hpp"
 #include "core/running/unit.hpp"
 #include "io/atomic_file.hpp"
 #include "io/expected_rows.hpp"
@@ -103,7 +104,40 @@ void check_recorded_study_hash(const fs::path& dir, const std::string& resolved)
                      "plan` (the same study, the same --out) or `dobudget merge`, which write it");
 }
 
-FinishedRun load_finished_run(const fs::path& dir) {
+namespace {
+
+// A range-mode directory (precision_run.hpp) is answered from its last round: manifest.json's
+// final_round, a whole number from 1 to max_search_rounds, names the directory round-K.
+int final_round(const fs::path& dir) {
+  const fs::path manifest = dir / "manifest.json";
+  if (!fs::exists(manifest))
+    throw InputError(dir.string(), 0, "",
+                     "is a range-mode run directory without manifest.json: finish the run with `dobudget plan` first");
+  nlohmann::json j;
+  try {
+    j = nlohmann::json::parse(read_input(manifest));
+  } catch (const nlohmann::json::exception&) {
+    throw InputError(manifest.string(), 0, "", "is not valid JSON; it was damaged");
+  }
+  if (!j.is_object() || !j.contains("final_round"))
+    throw InputError(manifest.string(), 0, "final_round",
+                     "missing: the range-mode run is not finished; finish it with `dobudget plan`");
+  if (!j["final_round"].is_number_integer() || j["final_round"].get<long long>() < 1 ||
+      j["final_round"].get<long long>() > max_search_rounds)
+    throw InputError(manifest.string(), 0, "final_round",
+                     fmt::format("must be a whole number from 1 to {}", max_search_rounds));
+  return static_cast<int>(j["final_round"].get<long long>());
+}
+
+FinishedRun load_run(const fs::path& dir, bool range_allowed);
+
+}  // namespace
+
+FinishedRun load_finished_run(const fs::path& dir) { return load_run(dir, true); }
+
+namespace {
+
+FinishedRun load_run(const fs::path& dir, bool range_allowed) {
   FinishedRun run;
   run.dir = dir;
   const fs::path resolved_file = dir / "study.resolved.yaml", runs_file = dir / "runs.csv";
@@ -117,6 +151,13 @@ FinishedRun load_finished_run(const fs::path& dir) {
   run.resolved_yaml = read_input(resolved_file);
   check_recorded_study_hash(dir, run.resolved_yaml);
   run.study = load_study(resolved_file);
+  if (run.study.precision) {
+    if (!range_allowed)
+      throw InputError(resolved_file.string(), 0, "precision", "a round of a range-mode run must be a plain study");
+    FinishedRun last = load_run(dir / fmt::format("round-{}", final_round(dir)), false);
+    last.dir = dir;
+    return last;
+  }
 
   std::uintmax_t rows = 0;
   for (const UnitId& u : enumerate_units(run.study))
@@ -133,5 +174,7 @@ FinishedRun load_finished_run(const fs::path& dir) {
   if (fs::exists(dir / "timings.csv")) read_fit_seconds(dir / "timings.csv", run.rows);
   return run;
 }
+
+}  // namespace
 
 }  // namespace dobudget::io

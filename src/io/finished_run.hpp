@@ -8,6 +8,9 @@
 //      the study's rows, each once, in order, with the measures the study takes
 //      (check_rows_against_study); runs.csv and timings.csv larger than the study's rows can fill
 //      are refused unread (max_row_bytes, runs_table.hpp).
+// A range-mode directory (precision_run.hpp) is loaded from its last round, round-K with K =
+// manifest.json's final_round (after step 1 on the directory itself): `dir` stays the directory
+// given, `study` and `rows` are the last round's (a plain study), so answers work as on a plain run.
 // Every file is opened as a regular file only (regular_file.hpp): a pipe or a device placed in the
 // directory is refused, never waited on or read without end.
 // Every problem is an InputError naming the file, and the line and column where there is one:

@@ -12,6 +12,7 @@
 #include <utility>
 #include <vector>
 
+#include "core/answer/precision_search.hpp"
 #include "io/model_file.hpp"
 #include "core/fitting/model_selection.hpp"
 #include "io/records_study.hpp"
@@ -44,6 +45,9 @@ const std::vector<std::string> family_keys{"states", "actions", "observations", 
 const std::vector<std::string> logging_keys = study_section_keys("logging");
 const std::vector<std::string> pilot_keys = study_section_keys("pilot");
 const std::vector<std::string> budget_keys = study_section_keys("budgets");
+// The two keys of the range form of budgets.pilot (a mapping inside a key: not a row of the table).
+const std::vector<std::string> pilot_range_keys{"from", "to"};
+const std::vector<std::string> precision_keys = study_section_keys("precision");
 const std::vector<std::string> fit_keys = study_section_keys("fit");
 const std::vector<std::string> evaluation_keys = study_section_keys("evaluation");
 const std::vector<std::string> planner_keys = study_section_keys("planner");
@@ -169,6 +173,9 @@ const Range prior_range{"in [0, 1e100]", [](double x) { return x >= 0.0 && x <= 
 // environment.prior_concentration: a Dirichlet parameter (posterior_world.hpp), positive; at most
 // 1e100 so that counts + c and the Gamma draws stay finite.
 const Range concentration_range{"in (0, 1e100]", [](double x) { return x > 0.0 && x <= 1e100; }};
+// precision.max_core_hours: above 0, at most 10^6 core-hours (a year of a 100-core cluster; the
+// rounds' cost is estimated from counts, cost_estimate.hpp, and must stay a meaningful cap).
+const Range core_hour_range{"in (0, 1e6]", [](double x) { return x > 0.0 && x <= 1e6; }};
 
 // ---- Reading ------------------------------------------------------------------------------------
 
@@ -247,6 +254,7 @@ class StudyParser {
         digit[k] = 0;
       }
     }
+    study.precision = precision(top, study.scenarios);
     return study;
   }
 
@@ -341,7 +349,14 @@ class StudyParser {
     const std::vector<int> logged_default =
         s.environment.records ? std::vector<int>{s.environment.records->logged_episodes} : s.logged_budgets;
     s.logged_budgets = budget_list(budgets, "logged", logged_default, 0, max_budget);
-    s.pilot_budgets = budget_list(budgets, "pilot", s.pilot_budgets, 0, max_budget);
+    const std::optional<Located> pilot_value = get(budgets, "pilot");
+    if (pilot_value && pilot_value->node.IsMap()) {
+      s.pilot_range = pilot_range(*pilot_value);
+      s.pilot_budgets = coarse_grid(*s.pilot_range);
+    } else {
+      s.pilot_budgets = budget_list(budgets, "pilot", s.pilot_budgets, 0, max_budget);
+    }
+    s.pilot_rounds = pilot_rounds(budgets, s);
     // A pilot budget of 0 fits the strategies that use logged data on logged data alone, so it
     // needs logged episodes (pilot-only with no data counts as not meeting the target: unit.hpp).
     if (s.pilot_budgets.front() == 0 && s.logged_budgets.back() == 0)
@@ -526,6 +541,64 @@ class StudyParser {
       in_.fail(value, fmt::format("cannot read the model file '{}': {}", path.string(),
                                   fs::exists(path, ec) ? "not a regular file" : "no such file"));
     return load_model(path, 1, 1.0);  // horizon and discount are the study's, set by the caller
+  }
+
+  // budgets.pilot: { from, to } (range mode): 1 <= from < to <= max_budget. From 1, not 0: the
+  // downward search reaches 0 by itself when the study has logged episodes (precision_search.hpp).
+  PilotRange pilot_range(const Located& v) const {
+    const Section range{v.key, in_.entries(v, pilot_range_keys)};
+    for (const char* k : {"from", "to"})
+      if (!range.find(k))
+        in_.fail(v, fmt::format("a range of pilot budgets needs both from and to (e.g. {{ from: 10, to: 3000 }}); {} "
+                                "is missing",
+                                k));
+    PilotRange r;
+    r.from = whole(range, "from", 0, 1, max_budget);
+    r.to = whole(range, "to", 0, 1, max_budget);
+    if (r.to <= r.from)
+      in_.fail(*range.find("to"), fmt::format("must be larger than budgets.pilot.from ({}), got {}", r.from, r.to));
+    return r;
+  }
+
+  // budgets.pilot_rounds: the round of each pilot budget, written by range-mode runs into the
+  // study of each round (precision_search.hpp); one whole number from 1 to max_rounds per budget.
+  std::vector<int> pilot_rounds(const Section& budgets, const ScenarioSettings& s) const {
+    const std::optional<Located> v = get(budgets, "pilot_rounds");
+    if (!v) return {};
+    if (s.pilot_range)
+      in_.fail(*v, "cannot be combined with a range of pilot budgets (budgets.pilot: { from, to }): the range mode "
+                   "chooses the rounds itself");
+    if (v->node.IsSequence() && v->node.size() != s.pilot_budgets.size())
+      in_.fail(*v, fmt::format("must give one round per pilot budget ({}), got {}", s.pilot_budgets.size(),
+                               v->node.size()));
+    const std::vector<Located> items = in_.items(*v);
+    if (items.size() != s.pilot_budgets.size())
+      in_.fail(*v, fmt::format("must give one round per pilot budget ({}), got {}", s.pilot_budgets.size(), items.size()));
+    std::vector<int> out;
+    for (const Located& item : items) {
+      const int x = in_.whole_int(item, 1);
+      if (x > max_search_rounds)
+        in_.fail(item, fmt::format("must be at most {} (the most rounds a range-mode run makes), got {}",
+                                   max_search_rounds, x));
+      out.push_back(x);
+    }
+    return out;
+  }
+
+  // precision: { relative, max_core_hours }, the stop rule of the range mode; it needs
+  // budgets.pilot as a range, and a range without it gets the defaults.
+  std::optional<PrecisionSettings> precision(const Section& top, const std::vector<Scenario>& scenarios) const {
+    const bool range = scenarios.front().settings.pilot_range.has_value();
+    const Located* v = top.find("precision");
+    if (!v) return range ? std::optional<PrecisionSettings>(PrecisionSettings{}) : std::nullopt;
+    if (!range)
+      in_.fail(*v, "needs budgets.pilot as a range, e.g. budgets: { pilot: { from: 10, to: 3000 } }: with a list of "
+                   "budgets there is nothing to search");
+    const Section p{v->key, in_.entries(*v, precision_keys)};
+    PrecisionSettings out;
+    out.relative = number(p, "relative", out.relative, open_unit);
+    out.max_core_hours = number(p, "max_core_hours", out.max_core_hours, core_hour_range);
+    return out;
   }
 
   std::vector<int> budget_list(const Section& s, std::string_view name, std::vector<int> fallback, int min,
@@ -770,7 +843,15 @@ std::string resolved_yaml(const Study& study) {
 
   out << YAML::Key << "budgets" << YAML::Value << YAML::BeginMap;
   put_list("logged", s.logged_budgets, int_text);
-  put_list("pilot", s.pilot_budgets, int_text);
+  if (s.pilot_range) {
+    out << YAML::Key << "pilot" << YAML::Value << YAML::Flow << YAML::BeginMap;
+    out << YAML::Key << "from" << YAML::Value << int_text(s.pilot_range->from);
+    out << YAML::Key << "to" << YAML::Value << int_text(s.pilot_range->to);
+    out << YAML::EndMap;
+  } else {
+    put_list("pilot", s.pilot_budgets, int_text);
+  }
+  if (!s.pilot_rounds.empty()) put_list("pilot_rounds", s.pilot_rounds, int_text);
   out << YAML::EndMap;
 
   put_int("replicates", "replicates", s.replicates);
@@ -814,6 +895,12 @@ std::string resolved_yaml(const Study& study) {
   out << YAML::EndMap;
 
   put_number("assurance", "assurance", s.assurance);
+  if (study.precision) {
+    out << YAML::Key << "precision" << YAML::Value << YAML::BeginMap;
+    out << YAML::Key << "relative" << YAML::Value << number_text(study.precision->relative);
+    out << YAML::Key << "max_core_hours" << YAML::Value << number_text(study.precision->max_core_hours);
+    out << YAML::EndMap;
+  }
 
   if (!axes.empty()) {
     out << YAML::Key << "sweep" << YAML::Value << YAML::BeginMap;

@@ -39,6 +39,12 @@
 //                                # key is absent: model_kl 0.02 if model_kl is measured (return_gap
 //                                # has no default target).
 //   assurance: 0.8               # in (0, 1)
+//   # Range mode (core/answer/precision_search.hpp): budgets.pilot as a range instead of a list,
+//   #   budgets: { pilot: { from: 10, to: 3000 } }   # 1 <= from < to <= 10^7
+//   # and the precision to reach (the defaults when the key is absent; it needs the range):
+//   precision: { relative: 0.1, max_core_hours: 2 }  # relative in (0, 1), max_core_hours in (0, 1e6]
+//   # budgets.pilot_rounds: [1, 2, ...] (whole numbers 1..20, one per listed pilot budget) is
+//   # written by range-mode runs into each round's study: the round that added each budget.
 //   sweep:                       # optional: dotted scalar key -> non-empty list of values
 //     logging.privilege: [0.0, 0.5, 0.9]
 //

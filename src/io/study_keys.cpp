@@ -68,9 +68,14 @@ const std::vector<StudyKey>& study_keys() {
       {"budgets", "section", "", "a mapping of the keys below", K::none, "the grid of data sizes simulated"},
       {"budgets.logged", "list of whole numbers", "[0, 1000]", "1 to 100 budgets, strictly increasing, 0 .. 10^7",
        K::none, "logged episodes available (each is a column of the answer)"},
-      {"budgets.pilot", "list of whole numbers", "[10, 30, 100, 300, 1000]",
-       "1 to 100 budgets, strictly increasing, 0 .. 10^7 (0 only with logged budgets above 0)", K::none,
-       "pilot episodes simulated; the answer interpolates between them"},
+      {"budgets.pilot", "list of whole numbers, or a range {from, to}", "[10, 30, 100, 300, 1000]",
+       "1 to 100 budgets, strictly increasing, 0 .. 10^7 (0 only with logged budgets above 0); or {from: a, to: b} "
+       "with 1 <= a < b <= 10^7 (range mode)", K::none,
+       "pilot episodes simulated; the answer interpolates between them. A range lets `plan` choose the budgets, "
+       "draws and replicates in rounds until the answers meet `precision`"},
+      {"budgets.pilot_rounds", "list of whole numbers", "none", "1 .. 20, one per listed pilot budget", K::none,
+       "written by range mode into each round's study: the round in which each pilot budget was added (warm starts "
+       "chain only within a round)"},
 
       {"replicates", "whole number", "10", "1 .. 10^5 (scenarios x draws x replicates at most 10^7)", K::whole,
        "independent data sets per environment draw"},
@@ -116,6 +121,13 @@ const std::vector<StudyKey>& study_keys() {
        "target normalised return gap"},
       {"assurance", "number", "0.8", "in (0, 1)", K::number,
        "the fraction of (draw, replicate) pairs that must meet the target"},
+
+      {"precision", "section", "none", "a mapping of the keys below; only with a range in budgets.pilot", K::none,
+       "range mode: the precision every needed budget must reach, and the cost cap"},
+      {"precision.relative", "number", "0.1", "in (0, 1)", K::none,
+       "largest half-width of each needed budget's 90% interval, relative to the budget"},
+      {"precision.max_core_hours", "number", "2", "in (0, 1e6]", K::none,
+       "no round starts whose estimated cost (from counts) would take the total above this"},
 
       {"sweep", "mapping", "none", "sweepable key -> non-empty list of values (at most 10^4 scenarios)", K::none,
        "scenarios: the cartesian product of the lists, the last key varying fastest"},

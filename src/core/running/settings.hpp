@@ -76,11 +76,31 @@ struct PlannerSettings {
   int rollouts = 2000;          // otherwise, rollouts per evaluated plan
 };
 
+// Range mode (issue 10): budgets.pilot given as { from, to } instead of a list; `plan` chooses the
+// budgets itself, in rounds (core/answer/precision_search.hpp).
+struct PilotRange {
+  int from = 10;
+  int to = 3000;
+};
+
+// The stated precision of a range-mode study: every needed budget's interval within +-relative
+// of it (half-width over value), or the rounds stop at max_core_hours (estimated from counts).
+struct PrecisionSettings {
+  double relative = 0.1;
+  double max_core_hours = 2.0;
+};
+
 struct ScenarioSettings {
   EnvironmentSettings environment;
   LoggingSettings logging;
   std::vector<int> logged_budgets{0, 1000};
   std::vector<int> pilot_budgets{10, 30, 100, 300, 1000};
+  // Range mode: the range; pilot_budgets then holds the first round's coarse grid.
+  std::optional<PilotRange> pilot_range;
+  // The round in which each pilot budget was added (parallel to pilot_budgets; empty: all in one).
+  // A fit's warm start from a smaller pilot budget only comes from the same round (unit.cpp), so
+  // budgets added in a later round never change the rows of earlier ones.
+  std::vector<int> pilot_rounds;
   int replicates = 10;
   std::vector<Strategy> strategies{all_strategies.begin(), all_strategies.end()};
   std::vector<Measure> measures{Measure::model_kl};
@@ -102,6 +122,7 @@ struct Study {
   std::string name = "example";
   std::uint64_t seed = 1;
   std::vector<Scenario> scenarios;  // at least one; a study without sweep has exactly one
+  std::optional<PrecisionSettings> precision;  // range mode (every scenario has pilot_range)
 };
 
 }  // namespace dobudget

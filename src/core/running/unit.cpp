@@ -105,7 +105,15 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
   for (Strategy st : s.strategies)
     for (int L : s.logged_budgets)
       for (int n : s.pilot_budgets) cells.emplace(fit_key(st, L, n), Cell{});
-  const FitKey* previous = nullptr;
+  // The round a pilot budget was added in (settings.hpp, pilot_rounds): the warm start from the
+  // next smaller pilot budget is taken only within one round, so that a round's rows do not depend
+  // on the budgets later rounds add.
+  const auto round_of = [&s](int n) {
+    if (s.pilot_rounds.empty()) return 0;
+    const auto it = std::find(s.pilot_budgets.begin(), s.pilot_budgets.end(), n);
+    return s.pilot_rounds[static_cast<std::size_t>(it - s.pilot_budgets.begin())];
+  };
+  std::map<std::tuple<Strategy, int, int>, const FitKey*> previous_in_round;  // (strategy, logged, round)
   for (auto& [k, c] : cells) {
     if (k.strategy == Strategy::pilot_only && k.pilot == 0) {
       // No data at all (pilot budget 0, no logged episodes used): nothing is fitted, and the cell
@@ -127,7 +135,8 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
     };
     if (k.strategy != Strategy::pilot_only) offer({Strategy::pilot_only, 0, k.pilot});
     if (k.strategy == Strategy::regime_aware) offer({Strategy::pooled, k.logged, k.pilot});
-    if (previous != nullptr && previous->strategy == k.strategy && previous->logged == k.logged) offer(*previous);
+    const FitKey*& previous = previous_in_round[{k.strategy, k.logged, round_of(k.pilot)}];
+    if (previous != nullptr) offer(*previous);
     previous = &k;
     Engine fit_rng = make_engine(
         key, Purpose::fit,
