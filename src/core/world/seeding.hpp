@@ -19,6 +19,7 @@ enum class Purpose : std::uint64_t {
   planner = 6,      // belief points for point-based value iteration
   rollout = 7,      // rollouts for return_gap, shared by every strategy and budget of a replicate
   bootstrap = 8,    // percentile bootstrap of the answer
+  pilot_design = 9, // EM starts of the targeted pilot's design fit to the logged episodes (pilot_design.hpp)
 };
 
 using Engine = boost::random::mt19937_64;
