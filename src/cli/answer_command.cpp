@@ -7,6 +7,7 @@
 #include "cli/option_values.hpp"
 #include "core/answer/answer.hpp"
 #include "io/answer_table.hpp"
+#include "io/pilot_choice_table.hpp"
 #include "io/finished_run.hpp"
 #include "io/runs_table.hpp"
 #include "io/study_file.hpp"
@@ -80,6 +81,7 @@ int answer_command(const AnswerArgs& args) {
   const auto answers = compute_study_answers(study, rows, ov);
   io::write_answer_files(dir, study, answers);
   std::printf("%s", io::format_answer_table(answers, &study).c_str());
+  std::printf("%s", io::format_pilot_choice_table(choose_pilot_policies(study, answers)).c_str());
   std::printf("\nwrote %s and %s\n\n%s\n", (dir / "answer.csv").string().c_str(), (dir / "answer.md").string().c_str(),
               caution);
   return 0;

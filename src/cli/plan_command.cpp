@@ -22,6 +22,7 @@
 #include "core/running/memory_estimate.hpp"
 #include "core/running/unit.hpp"
 #include "io/answer_table.hpp"
+#include "io/pilot_choice_table.hpp"
 #include "io/file_name.hpp"
 #include "io/machine_memory.hpp"
 #include "io/memory_messages.hpp"
@@ -190,6 +191,7 @@ int plan_and_report(const Study& study, const std::string& resolved, const io::P
   const auto answers = compute_study_answers(study, outcome.rows);
   io::write_answer_files(opt.out, study, answers);
   std::printf("\n%s", io::format_answer_table(answers, &study).c_str());
+  std::printf("%s", io::format_pilot_choice_table(choose_pilot_policies(study, answers)).c_str());
   std::printf("\nrun directory: %s (runs.csv, answer.csv, answer.md, manifest.json); %zu units in %.1f s%s\n",
               opt.out.string().c_str(), outcome.units_done, outcome.seconds,
               outcome.units_resumed ? fmt::format(" ({} resumed)", outcome.units_resumed).c_str() : "");

@@ -4,6 +4,7 @@
 #include "io/atomic_file.hpp"
 
 #include "io/csv.hpp"
+#include "io/pilot_choice_table.hpp"
 #include "io/records_answer.hpp"
 #include "io/text_escape.hpp"
 
@@ -161,14 +162,14 @@ std::string_view readable_answers_note() {
 
 std::string_view answer_csv_header() {
   return "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
-         "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws,unconfirmed";
+         "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws,unconfirmed,pilot_policy";
 }
 
 std::string answer_csv_line(const AnswerRow& r) {
-  return fmt::format("{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}", r.scenario, name(r.measure), cell(r.target),
+  return fmt::format("{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{},{}", r.scenario, name(r.measure), cell(r.target),
                      cell(r.assurance), name(r.strategy), r.logged, cell(r.needed_pilot), cell(r.low), cell(r.high),
                      name(r.status), cell(r.floor), cell(r.saved_vs_pilot_only), cell(r.exchange_rate), r.pairs,
-                     name(r.criterion), r.draws, cell(r.unconfirmed));
+                     name(r.criterion), r.draws, cell(r.unconfirmed), name(r.pilot_policy));
 }
 
 void write_answer_csv(const std::filesystem::path& path, const std::vector<AnswerRow>& rows) {
@@ -371,7 +372,7 @@ std::vector<AnswerRow> worst_case_over_scenarios(const std::vector<AnswerRow>& r
   auto same_cell = [](const AnswerRow& a, const AnswerRow& b) {
     const bool same_assurance = a.assurance == b.assurance || (std::isnan(a.assurance) && std::isnan(b.assurance));
     return a.measure == b.measure && a.target == b.target && same_assurance && a.criterion == b.criterion &&
-           a.strategy == b.strategy && a.logged == b.logged;
+           a.strategy == b.strategy && a.logged == b.logged && a.pilot_policy == b.pilot_policy;  // per policy
   };
   auto worse = [](const AnswerRow& a, const AnswerRow& b) {  // a needs more than b
     if (std::isnan(a.needed_pilot)) return !std::isnan(b.needed_pilot);
@@ -433,8 +434,13 @@ void write_answer_files(const std::filesystem::path& dir, const Study& study, co
   std::vector<std::string> labels;
   for (const auto& sc : study.scenarios) labels.push_back(sc.label);
   write_answer_csv(dir / "answer.csv", rows);
-  // A study from records adds its section (records_answer.hpp) to the page.
-  write_file_atomically(dir / "answer.md", format_answer_md(study.name, labels, rows) + records_answer_text(study, rows, true));
+  // With pilot policies compared, pilot_choice.csv and a section of answer.md; a study from records
+  // adds its section (records_answer.hpp).
+  const std::vector<PilotChoiceRow> choices = choose_pilot_policies(study, rows);
+  if (!choices.empty()) write_pilot_choice_csv(dir / "pilot_choice.csv", choices);
+  write_file_atomically(dir / "answer.md",
+                        format_answer_md(study.name, labels, rows) + format_pilot_choice_md(choices) +
+                            records_answer_text(study, rows, true));
 }
 
 std::string needed_text(const AnswerRow& row) { return human_needed(row); }

@@ -2,7 +2,7 @@
 //
 // answer.csv columns (the design fixes the first ten; later ones are appended, never reordered):
 //   scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,
-//   floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws,unconfirmed
+//   floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws,unconfirmed,pilot_policy
 // Numbers are written with fmt "{}": the shortest decimal that reads back to the same double
 // (so a parse round-trips exactly); infinities as "inf" / "-inf"; missing values (std::nullopt
 // or NaN: e.g. the assurance under the mean criterion, needed_pilot when not-reached, the

@@ -59,6 +59,12 @@ std::vector<std::string> strategy_names() {
   return out;
 }
 
+std::vector<std::string> pilot_policy_names() {
+  std::vector<std::string> out;
+  for (PilotPolicyKind p : all_pilot_policies) out.emplace_back(name(p));
+  return out;
+}
+
 std::vector<std::string> measure_names() {
   std::vector<std::string> out;
   for (Measure m : all_measures) out.emplace_back(name(m));
@@ -216,7 +222,8 @@ class StudyParser {
     }
     if (const Located* v = top.find("seed")) study.seed = in_.unsigned_whole(*v);
 
-    const std::vector<SweepAxis> axes = sweep(top);
+    std::vector<SweepAxis> axes = sweep(top);
+    if (std::optional<SweepAxis> policies = policy_list(top)) axes.push_back(std::move(*policies));
     // The number of scenarios, checked before any is built and without overflow.
     std::size_t total = 1;
     for (const SweepAxis& a : axes) {
@@ -333,6 +340,40 @@ class StudyParser {
     }
   }
 
+  // pilot.policy: one name, or (issue 13) a list of names, read as a sweep axis over pilot.policy
+  // added after the sweep's keys (varying fastest), so that the policies are compared on paired
+  // scenarios: the same worlds, logged data and evaluation histories (seeding.hpp).
+  PilotPolicyKind pilot_policy(const Section& s) const {
+    const std::optional<Located> v = get(s, "policy");
+    if (!v) return PilotPolicyKind::uniform;
+    const std::string p = in_.text(*v);
+    const std::optional<PilotPolicyKind> k = parse_pilot_policy(p);
+    if (!k) in_.fail(*v, input::unknown_name("pilot policy", p, pilot_policy_names()));
+    return *k;
+  }
+
+  std::optional<SweepAxis> policy_list(const Section& top) const {
+    const Section pilot = section(top, "pilot", pilot_keys);
+    const Located* v = pilot.find("policy");
+    if (!v || !v->node.IsSequence()) return std::nullopt;
+    if (const Located* sw = top.find("sweep"); sw && sw->node.IsMap() && sw->node["pilot.policy"])
+      in_.fail(*v, "is a list and sweep.pilot.policy is given too; give the policies in one place");
+    if (v->node.size() > max_scenarios)
+      in_.fail(*v, fmt::format("lists {} values, more than the {} scenarios a study may have", v->node.size(),
+                               max_scenarios));
+    SweepAxis axis{"pilot.policy", in_.items(*v), {}};
+    if (axis.values.empty()) in_.fail(*v, "must list at least one pilot policy");
+    for (std::size_t i = 0; i < axis.values.size(); ++i) {
+      const std::string p = in_.text(axis.values[i]);
+      if (!parse_pilot_policy(p)) in_.fail(axis.values[i], input::unknown_name("pilot policy", p, pilot_policy_names()));
+      for (std::size_t j = 0; j < i; ++j)
+        if (axis.canonical[j] == p)
+          in_.fail(axis.values[i], fmt::format("'{}' is listed twice (first as {})", p, axis.values[j].key));
+      axis.canonical.push_back(p);
+    }
+    return axis;
+  }
+
   ScenarioSettings settings(const Section& top) {
     ScenarioSettings s;
     s.environment = environment(top);
@@ -342,7 +383,10 @@ class StudyParser {
     s.logging.temperature = number(logging, "temperature", s.logging.temperature, positive);
     s.logging.q_discount = number(logging, "q_discount", s.logging.q_discount, below_one);
 
-    uniform_policy(section(top, "pilot", pilot_keys));
+    const Section pilot = section(top, "pilot", pilot_keys);
+    s.pilot.policy = pilot_policy(pilot);
+    s.pilot.explore = number(pilot, "explore", s.pilot.explore, unit_interval);
+    s.pilot.floor = number(pilot, "floor", s.pilot.floor, unit_interval);
 
     const Section budgets = section(top, "budgets", budget_keys);
     // From records, the logged budget defaults to the number of logged episodes they hold.
@@ -838,7 +882,9 @@ std::string resolved_yaml(const Study& study) {
   out << YAML::EndMap;
 
   out << YAML::Key << "pilot" << YAML::Value << YAML::BeginMap;
-  put("pilot.policy", "policy", "uniform");
+  put("pilot.policy", "policy", std::string(name(s.pilot.policy)));
+  put_number("pilot.explore", "explore", s.pilot.explore);
+  put_number("pilot.floor", "floor", s.pilot.floor);
   out << YAML::EndMap;
 
   out << YAML::Key << "budgets" << YAML::Value << YAML::BeginMap;

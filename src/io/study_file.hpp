@@ -20,7 +20,12 @@
 //   #   value, or any synthetic-family key, is an error). Instead of `file`, `model:` may hold the
 //   #   model itself (the model file format, see model_file.hpp); resolved_yaml writes it so.
 //   logging: { privilege: 0.9, temperature: 0.2, q_discount: 0.9 }  # [0,1], > 0, [0,1)
-//   pilot: { policy: uniform }   # only uniform for now
+//   pilot: { policy: uniform, explore: 0.2, floor: 0.2 }
+//                                # policy: uniform, usual-practice, complement or targeted
+//                                # (core/world/pilot_policy.hpp), or a list of them: the list is
+//                                # a sweep axis over pilot.policy added after the sweep's keys
+//                                # (paired scenarios; the answer then names the best policy).
+//                                # explore (usual-practice) and floor (complement, targeted) in [0, 1]
 //   budgets:                     # non-empty, strictly increasing whole numbers
 //     logged: [0, 1000]          #   >= 0
 //     pilot: [10, 30, 100, 300, 1000]  # >= 1

@@ -63,7 +63,14 @@ const std::vector<StudyKey>& study_keys() {
        "discount of the fully observed Q that the loggers rank actions by"},
 
       {"pilot", "section", "", "a mapping of the keys below", K::none, "the pilot regime"},
-      {"pilot.policy", "text", "uniform", "uniform", K::text, "how pilot actions are chosen: uniformly at random"},
+      {"pilot.policy", "text, or a list of texts", "uniform", "uniform, usual-practice, complement, targeted; a list "
+       "compares them (a paired sweep axis)", K::text,
+       "how pilot actions are chosen from the recorded history only (never the hidden state)"},
+      {"pilot.explore", "number", "0.2", "in [0, 1]", K::number,
+       "usual-practice: the share of uniformly random actions; the rest follows the loggers' action frequencies "
+       "after the same recorded observation"},
+      {"pilot.floor", "number", "0.2", "in [0, 1]", K::number,
+       "complement and targeted: every action keeps at least floor / A probability"},
 
       {"budgets", "section", "", "a mapping of the keys below", K::none, "the grid of data sizes simulated"},
       {"budgets.logged", "list of whole numbers", "[0, 1000]", "1 to 100 budgets, strictly increasing, 0 .. 10^7",

@@ -125,7 +125,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
   REQUIRE(std::getline(in, line));
   CHECK(line ==
         "scenario,measure,target,assurance,strategy,logged,needed_pilot,low,high,status,"
-        "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws,unconfirmed");
+        "floor,saved_vs_pilot_only,exchange_rate,pairs,criterion,draws,unconfirmed,pilot_policy");
   std::vector<std::vector<std::string>> parsed;
   while (std::getline(in, line)) parsed.push_back(split(line));
   REQUIRE(parsed.size() == rows.size());
@@ -133,7 +133,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
     const auto& c = parsed[i];
     const auto& r = rows[i];
     INFO("row " << i);
-    REQUIRE(c.size() == 17);
+    REQUIRE(c.size() == 18);
     CHECK(std::stoi(c[0]) == r.scenario);
     CHECK(parse_measure(c[1]) == r.measure);
     CHECK(same(parse(c[2]), r.target));
@@ -151,6 +151,7 @@ TEST_CASE("answer.csv: header and exact round trip", "[answer_table]") {
     CHECK(parse_criterion(c[14]) == r.criterion);
     CHECK(std::stoi(c[15]) == r.draws);
     CHECK(parse_opt(c[16]) == r.unconfirmed);
+    CHECK(parse_pilot_policy(c[17]) == r.pilot_policy);  // issue 13: appended last
   }
   CHECK(parsed[0][16] == "0.0125");
   CHECK(parsed[1][16].empty());  // no share known: empty

@@ -105,6 +105,9 @@ void require_same(const ScenarioSettings& a, const ScenarioSettings& b) {
   CHECK(a.logging.privilege == b.logging.privilege);
   CHECK(a.logging.temperature == b.logging.temperature);
   CHECK(a.logging.q_discount == b.logging.q_discount);
+  CHECK(a.pilot.policy == b.pilot.policy);
+  CHECK(a.pilot.explore == b.pilot.explore);
+  CHECK(a.pilot.floor == b.pilot.floor);
   CHECK(a.logged_budgets == b.logged_budgets);
   CHECK(a.pilot_budgets == b.pilot_budgets);
   CHECK(a.replicates == b.replicates);
@@ -423,7 +426,16 @@ TEST_CASE("strategies, measures, policies and targets", "[study_file]") {
   check_error("measures: [model_kl]\ntargets:\n  return_gap: 0.1\n", 3, "targets.return_gap",
               "is a target for return_gap, which is not measured");
   check_error("measures: [return_gap]\ntargets: { model_kl: 0.1 }\n", 2, "targets.model_kl", "not measured");
-  check_error("pilot:\n  policy: expert\n", 2, "pilot.policy", "only 'uniform' is supported for now, got 'expert'");
+  check_error("pilot:\n  policy: expert\n", 2, "pilot.policy",
+              "unknown pilot policy 'expert'; expected one of: uniform, usual-practice, complement, targeted");
+  check_error("pilot:\n  policy: [uniform, complment]\n", 2, "pilot.policy[1]", "did you mean 'complement'?");
+  check_error("pilot:\n  policy: [uniform, targeted, uniform]\n", 2, "pilot.policy[2]",
+              "'uniform' is listed twice (first as pilot.policy[0])");
+  check_error("pilot:\n  policy: []\n", 2, "pilot.policy", "must list at least one pilot policy");
+  check_error("pilot:\n  policy: [uniform, targeted]\nsweep:\n  pilot.policy: [uniform]\n", 2, "pilot.policy",
+              "is a list and sweep.pilot.policy is given too");
+  check_error("pilot:\n  explore: 1.5\n", 2, "pilot.explore", "must be in [0, 1], got 1.5");
+  check_error("sweep:\n  pilot.floor: [0.1, -1]\n", 2, "sweep.pilot.floor[1]", "must be in [0, 1]");
   check_error("evaluation:\n  policy: greedy\n", 2, "evaluation.policy", "only 'uniform' is supported for now");
 }
 
@@ -546,7 +558,7 @@ TEST_CASE("sweep errors name the sweep entry", "[study_file]") {
   check_error("sweep:\n  environment.states: [4, four]\n", 2, "sweep.environment.states[1]",
               "expected a whole number, got 'four'");
   check_error("sweep:\n  pilot.policy: [uniform, expert]\n", 2, "sweep.pilot.policy[1]",
-              "only 'uniform' is supported");
+              "unknown pilot policy 'expert'");
   check_error("measures: [model_kl]\nsweep:\n  targets.return_gap: [0.1]\n", 3, "sweep.targets.return_gap[0]",
               "not measured");
   check_error("sweep:\n  logging.privilge: [0.5]\n", 2, "sweep.logging.privilge",
@@ -562,6 +574,30 @@ TEST_CASE("sweep errors name the sweep entry", "[study_file]") {
   check_error("sweep:\n  logging.privilege: [0.5, 0.50]\n", 2, "sweep.logging.privilege[1]",
               "value 0.5 is listed twice (first as sweep.logging.privilege[0])");
   check_error("sweep: [logging.privilege]\n", 1, "sweep", "expected a mapping");
+}
+
+TEST_CASE("pilot policies: a list is a sweep axis over pilot.policy, after the sweep's keys", "[study_file][pilot-policy]") {
+  const Study s = parse(
+      "pilot: { policy: [uniform, targeted, usual-practice], explore: 0.3, floor: 0.1 }\n"
+      "sweep:\n  logging.privilege: [0.5, 0.9]\n");
+  REQUIRE(s.scenarios.size() == 6);
+  const PilotPolicyKind order[] = {PilotPolicyKind::uniform, PilotPolicyKind::targeted, PilotPolicyKind::usual_practice};
+  for (int i = 0; i < 6; ++i) {
+    const Scenario& sc = s.scenarios[static_cast<std::size_t>(i)];
+    CHECK(sc.settings.pilot.policy == order[i % 3]);
+    CHECK(sc.settings.pilot.explore == 0.3);
+    CHECK(sc.settings.pilot.floor == 0.1);
+    CHECK(sc.settings.logging.privilege == (i < 3 ? 0.5 : 0.9));
+  }
+  CHECK(s.scenarios[4].label == "logging.privilege=0.9, pilot.policy=targeted");
+  check_round_trip(s);
+  CHECK_THAT(resolved_yaml(s), Catch::Contains("pilot.policy: [uniform, targeted, usual-practice]"));
+  // One policy is one scenario, as before.
+  const Study one = parse("pilot: { policy: complement }\n");
+  REQUIRE(one.scenarios.size() == 1);
+  CHECK(one.scenarios[0].settings.pilot.policy == PilotPolicyKind::complement);
+  CHECK(one.scenarios[0].label.empty());
+  check_round_trip(one);
 }
 
 TEST_CASE("resolved_yaml round-trips the study", "[study_file]") {

@@ -256,6 +256,7 @@ struct CellResult {
   double sampling_low = kNaN, sampling_high = kNaN;
   int pairs = 0;
   int draws = 0;
+  std::vector<double> resampled_needs;  // in resample order (AnswerRow::resampled_needs)
 };
 
 CellResult answer_cell(const Cell& cell, const AnswerQuery& q, std::uint64_t study_seed, int scenario,
@@ -288,6 +289,7 @@ CellResult answer_cell(const Cell& cell, const AnswerQuery& q, std::uint64_t stu
     lower[k] = o.bracket_low;
     upper[k] = o.bracket_high;
   }
+  res.resampled_needs = needed;
   std::sort(needed.begin(), needed.end());
   std::sort(lower.begin(), lower.end());
   std::sort(upper.begin(), upper.end());
@@ -440,6 +442,8 @@ std::vector<AnswerRow> compute_answers(const std::vector<RunRecord>& rows, int s
         row.bracket_high = res.point.bracket_high;
         row.sampling_low = res.sampling_low;
         row.sampling_high = res.sampling_high;
+        row.pilot_policy = settings.pilot.policy;
+        row.resampled_needs = res.resampled_needs;
         if (const auto g = groups.find({s, logged}); g != groups.end()) {
           // Of the rows with a fit (a cell with no data has none: starts 0), those whose best
           // optimum no second start reached.

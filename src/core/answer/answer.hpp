@@ -168,6 +168,12 @@ struct AnswerRow {
   double bracket_high = 0.0;
   double sampling_low = 0.0;  // sampling part of the interval only (see Interval); NaN when bootstrap == 0
   double sampling_high = 0.0;
+  // Issue 13. The scenario's pilot policy (CSV column `pilot_policy`, appended last), and the
+  // interpolated need of every bootstrap resample in resample order (+infinity for unreachable or
+  // not-reached; empty when bootstrap == 0; not a CSV column): resamples are the same pairs for
+  // every scenario of a study, so two scenarios' k-th entries are paired (pilot_choice.hpp).
+  PilotPolicyKind pilot_policy = PilotPolicyKind::uniform;
+  std::vector<double> resampled_needs;
 };
 
 // The interval's half-width relative to the needed budget, (high - low) / 2 / needed_pilot:

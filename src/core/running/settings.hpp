@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "core/measures/measure.hpp"
+#include "core/world/pilot_policy.hpp"
 #include "core/world/pomdp.hpp"
 #include "core/fitting/strategy.hpp"
 
@@ -56,6 +57,16 @@ struct LoggingSettings {
   double q_discount = 0.9;  // discount of the fully observed Q used by the logger
 };
 
+// The pilot regime's policy (core/world/pilot_policy.hpp, issue 13). `explore` is the uniform
+// share of usual-practice; `floor` the share phi of complement and targeted spread uniformly
+// (every action keeps at least floor / A). The policies read the unit's logged episodes at the
+// largest logged budget (the records the team holds).
+struct PilotSettings {
+  PilotPolicyKind policy = PilotPolicyKind::uniform;
+  double explore = 0.2;
+  double floor = 0.2;
+};
+
 struct FitSettings {
   int latent_states = 4;
   int restarts = 3;          // random starts always run, each to convergence (see fit.hpp)
@@ -93,6 +104,7 @@ struct PrecisionSettings {
 struct ScenarioSettings {
   EnvironmentSettings environment;
   LoggingSettings logging;
+  PilotSettings pilot;
   std::vector<int> logged_budgets{0, 1000};
   std::vector<int> pilot_budgets{10, 30, 100, 300, 1000};
   // Range mode: the range; pilot_budgets then holds the first round's coarse grid.

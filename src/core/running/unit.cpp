@@ -10,6 +10,7 @@
 #include "core/fitting/fit.hpp"
 #include "core/measures/model_kl.hpp"
 #include "core/measures/return_gap.hpp"
+#include "core/running/pilot_design.hpp"
 #include "core/world/synthetic.hpp"
 
 namespace dobudget {
@@ -77,8 +78,11 @@ std::vector<RunRecord> run_unit(const Study& study, const UnitId& u, const DrawC
   // Nested data: every budget is a prefix of the largest budget's episodes.
   Engine pilot_rng = make_engine(key, Purpose::pilot);
   Engine logged_rng = make_engine(key, Purpose::logged);
-  const Dataset pilot = simulate(env, Regime::pilot, s.pilot_budgets.back(), pilot_rng);
   const Dataset logged = simulate(env, Regime::logged, s.logged_budgets.back(), logged_rng);
+  // The pilot policy reads the logged records and the observable shape only (pilot_design.hpp);
+  // the simulator keeps the state. Its streams do not depend on the policy (paired scenarios).
+  const std::unique_ptr<PilotPolicy> policy = make_pilot_policy(s, logged, observable_shape(env.model), key, stop);
+  const Dataset pilot = simulate_pilot(env, *policy, s.pilot_budgets.back(), pilot_rng);
 
   bool want_kl = false, want_gap = false;
   for (Measure m : s.measures) (m == Measure::model_kl ? want_kl : want_gap) = true;

@@ -7,6 +7,7 @@
 #include <cstdint>
 #include <vector>
 
+#include "core/world/pilot_policy.hpp"
 #include "core/world/pomdp.hpp"
 #include "core/world/seeding.hpp"
 
@@ -42,5 +43,11 @@ struct DataView {
 // evaluation policy) or from the privileged logging policy acting on the hidden state (logged
 // regime). Per step: a_t, then s_{t+1} ~ T[a_t](s_t, .), then o_{t+1} ~ E(s_{t+1}, .).
 Dataset simulate(const Environment& env, Regime regime, int n, Engine& rng);
+
+// n pilot episodes of `env` whose actions come from `policy` (pilot_policy.hpp), which is given
+// the recorded history only (never the state); episodes run in order, and the policy is told of
+// each finished one. With a uniform policy the output is simulate(env, Regime::pilot, n, rng)'s,
+// draw for draw; otherwise a_t ~ p(. | record) by inverse transform on one uniform.
+Dataset simulate_pilot(const Environment& env, PilotPolicy& policy, int n, Engine& rng);
 
 }  // namespace dobudget

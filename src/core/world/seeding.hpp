@@ -21,6 +21,7 @@ enum class Purpose : std::uint64_t {
   bootstrap = 8,    // percentile bootstrap of the answer
   records = 9,      // episodes written by `dobudget simulate` (sub 0: logged, 1: pilot; episode_records.hpp)
   records_fit = 10,  // fits of the team's records (model_selection.hpp): starts and episode folds
+  pilot_design = 11,  // EM starts of the targeted pilot's design fit to the logged episodes (pilot_design.hpp)
 };
 
 using Engine = boost::random::mt19937_64;
