@@ -133,12 +133,43 @@ std::vector<AnswerRow> queries_of(const std::vector<AnswerRow>& rows) {
   return q;
 }
 
+// The pilot policy in words (core/world/pilot_policy.hpp); a sweep or list over pilot.policy names them all.
+std::string pilot_sentence(const PilotSettings& pilot, const Sweep& sweep) {
+  for (const auto& [key, values] : sweep)
+    if (key == "pilot.policy")
+      return fmt::format(" Pilot episodes were simulated under each of the pilot policies {} on the same worlds, logged "
+                         "data and evaluation histories; every policy chooses actions from the recorded history only, "
+                         "never from the hidden state (unconfounded).",
+                         join(values, ", ", " and "));
+  switch (pilot.policy) {
+    case PilotPolicyKind::uniform: break;
+    case PilotPolicyKind::usual_practice:
+      return fmt::format(" Pilot episodes followed usual practice: with probability {} a uniformly random action, "
+                         "otherwise an action drawn from the loggers' action frequencies after the same recorded "
+                         "observation (from the recorded history only, so unconfounded).",
+                         number(pilot.explore));
+    case PilotPolicyKind::complement:
+      return fmt::format(" Pilot episodes favoured the actions the logged episodes show least often after the same "
+                         "recorded observation, each action keeping at least {} / A probability (from the recorded "
+                         "history only, so unconfounded).",
+                         number(pilot.floor));
+    case PilotPolicyKind::targeted:
+      return fmt::format(" Pilot episodes were targeted: after a regime-aware fit to the logged episodes, each step "
+                         "took the action whose next transition is least known under the current belief, and a "
+                         "uniformly random action with probability {} (from the recorded history only, so "
+                         "unconfounded).",
+                         number(pilot.floor));
+  }
+  return " Pilot episodes chose actions uniformly at random, independently of the hidden state (unconfounded).";
+}
+
 }  // namespace
 
 const char* methods_caution() {
   return "These numbers are a design input obtained by simulation under the assumptions stated above; they are no "
          "substitute for a qualified statistician, for ethics review, or for the regulations that govern trials "
          "where the trial runs.";
+
 }
 
 std::vector<std::string> methods_paragraphs(const MethodsInput& in) {
@@ -196,7 +227,7 @@ std::vector<std::string> methods_paragraphs(const MethodsInput& in) {
         value_of(sweep, "logging.privilege", number(s.logging.privilege)),
         value_of(sweep, "logging.temperature", number(s.logging.temperature)));
   }
-  p += " Pilot episodes chose actions uniformly at random, independently of the hidden state (unconfounded).";
+  p += pilot_sentence(s.pilot, sweep);
   p += fmt::format(" Logged budgets: {} episodes; pilot budgets: {} episodes (smaller budgets are the first episodes of larger ones).",
                    value_of(sweep, "budgets.logged", list(s.logged_budgets)),
                    value_of(sweep, "budgets.pilot", list(s.pilot_budgets)));
@@ -290,7 +321,8 @@ std::vector<std::string> methods_paragraphs(const MethodsInput& in) {
     a += given_logger ? "the loggers decided as the given logging policy says; "
                       : "the loggers decided as the logging model above says (how much of the hidden state they saw is "
                         "the privilege); ";
-    a += "pilot actions are assigned uniformly at random; episodes are independent and of the fixed horizon; the "
+    a += "pilot actions depend only on the recorded history (never on the hidden state); episodes are independent "
+         "and of the fixed horizon; the "
          "fitted model class (an input-output hidden Markov model with the stated latent states) is the one the "
          "analysis will use; and the targets are met on simulated data, where the truth is known.";
     if (!e.given && e.draws < few_draws)
