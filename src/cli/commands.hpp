@@ -60,6 +60,17 @@ struct FitArgs {
   std::string out;                // empty: fits/<safe form of the file name>
 };
 int fit_command(const FitArgs& args);
+// Episodes of world `draw` of a study, in the episodes-file format (io/episode_file.hpp).
+struct SimulateArgs {
+  std::string study;
+  std::string logged;        // N episodes from the world's logging policy
+  std::string pilot;         // empty: 0
+  std::string draw;          // empty: 0
+  std::string seed;          // empty: the study's seed
+  std::string out;           // the episodes file
+  std::string codebook_out;  // empty: none written
+};
+int simulate_command(const SimulateArgs& args);
 
 // Figures (gnuplot) and a report page in DIR/report/, from a finished run directory.
 int report_command(const std::string& dir);

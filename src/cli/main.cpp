@@ -35,7 +35,8 @@ int main(int argc, char** argv) {
                          "  dobudget report runs/default                 (figures and runs/default/report/report.md)\n"
                          "  dobudget answer runs/default --target model_kl=0.01 --assurance 0.9   (re-analysis, seconds)\n"
                          "  dobudget draw configs/default.yaml --out envs   (write the synthetic environments)\n"
-                         "  dobudget fit episodes.csv --codebook codebook.yaml --out fit   (fit your own records)\n\n"
+                         "  dobudget fit episodes.csv --codebook codebook.yaml --out fit   (fit your own records)\n"
+                         "  dobudget simulate configs/default.yaml --logged 500 --pilot 20 --out episodes.csv\n\n"
                          "Caution: ") +
              caution);
   app.require_subcommand(1);
@@ -98,6 +99,25 @@ int main(int argc, char** argv) {
   fit->add_option("--restarts", fit_args.restarts, "EM starts per fit, 1 to 1000 (default 3)")->type_name("N");
   fit->add_option("--seed", fit_args.seed, "Seed of the starts and of the folds (default 1)")->type_name("S");
   fit->add_option("--out", fit_args.out, "Directory to write (default: fits/<episodes file name>)")->type_name("DIR");
+  SimulateArgs simulate_args;
+  auto* simulate = app.add_subcommand(
+      "simulate", "Write episodes of one world of a study as an episodes file (CSV), the format dobudget imports");
+  simulate->add_option("study", simulate_args.study, "Study file (YAML); its first scenario when it sweeps")->required();
+  simulate->add_option("--logged", simulate_args.logged, "Logged episodes, from the world's logging policy (0 to 10^7)")
+      ->type_name("N")
+      ->required();
+  simulate->add_option("--pilot", simulate_args.pilot, "Pilot episodes, from the pilot policy (default 0)")->type_name("M");
+  simulate->add_option("--draw", simulate_args.draw, "World number K, 0 to environment.draws - 1 (default 0): the world `draw` and `plan` make")
+      ->type_name("K");
+  simulate->add_option("--seed", simulate_args.seed,
+                       "Seed of the episodes only (default: the study's seed); the world stays the study's draw K")
+      ->type_name("S");
+  simulate->add_option("--out", simulate_args.out, "Episodes file to write (CSV: episode,step,observation,action,regime)")
+      ->type_name("FILE")
+      ->required();
+  simulate->add_option("--codebook-out", simulate_args.codebook_out,
+                       "Also write the codebook (YAML: codes o0.. and a0.., the world's reward per observation)")
+      ->type_name("FILE");
 
   std::string report_dir;
   auto* report = app.add_subcommand("report", "Figures (gnuplot) and a report page, DIR/report/report.md, from a finished run");
@@ -118,6 +138,7 @@ int main(int argc, char** argv) {
     if (*merge) return merge_command(merge_args);
     if (*report) return report_command(report_dir);
     if (*fit) return fit_command(fit_args);
+    if (*simulate) return simulate_command(simulate_args);
   } catch (const io::InputError& e) {
     std::fprintf(stderr, "error: %s\n", io::printable_text(e.what()).c_str());
     return 2;

@@ -36,6 +36,14 @@ long long whole_option(std::string_view option, std::string_view text, long long
   return x;
 }
 
+std::uint64_t unsigned_option(std::string_view option, std::string_view text) {
+  std::uint64_t x = 0;
+  const auto [end, ec] = std::from_chars(text.data(), text.data() + text.size(), x);
+  if (text.empty() || ec != std::errc() || end != text.data() + text.size())
+    throw BadInput(fmt::format("{}: expected a whole number from 0 to 18446744073709551615, got {}", option, shown(text)));
+  return x;
+}
+
 double number_option(std::string_view option, std::string_view text) {
   const std::optional<double> x = read_number(text);
   if (!x) throw BadInput(fmt::format("{}: expected a finite decimal number, got {}", option, shown(text)));

@@ -5,6 +5,7 @@
 // Numbers are read with std::from_chars: decimal only (no "0x10", no "inf", no "nan", no locale),
 // the whole text, nothing left over.
 #pragma once
+#include <cstdint>
 #include <string>
 #include <string_view>
 
@@ -12,6 +13,9 @@ namespace dobudget::cli {
 
 // A whole number in [min, max].
 long long whole_option(std::string_view option, std::string_view text, long long min, long long max);
+
+// A whole number from 0 to 2^64 - 1 (a seed).
+std::uint64_t unsigned_option(std::string_view option, std::string_view text);
 
 // A finite decimal number (e.g. "0.01", "1e-3").
 double number_option(std::string_view option, std::string_view text);

@@ -154,6 +154,16 @@ Codebook numbered_codebook(const Pomdp& world) {
   return book;
 }
 
+EpisodeRecords numbered_records(const Pomdp& world, Dataset logged, Dataset pilot) {
+  EpisodeRecords r;
+  r.codebook = numbered_codebook(world);
+  for (int i = 0; i < logged.count; ++i) r.logged_ids.push_back(fmt::format("logged-{}", i));
+  for (int i = 0; i < pilot.count; ++i) r.pilot_ids.push_back(fmt::format("pilot-{}", i));
+  r.logged = std::move(logged);
+  r.pilot = std::move(pilot);
+  return r;
+}
+
 // ---- Episodes file -------------------------------------------------------------------------------
 
 namespace {

@@ -85,4 +85,12 @@ std::string codebook_yaml(const Codebook& codebook);
 // reward per observation.
 Codebook numbered_codebook(const Pomdp& world);
 
+// Episodes of a simulated world as a file holds them: numbered_codebook(world), ids logged-0,
+// logged-1, ... and pilot-0, pilot-1, ...
+EpisodeRecords numbered_records(const Pomdp& world, Dataset logged, Dataset pilot);
+
+// The most rows `dobudget simulate` writes: 2.5 x 10^7, about 0.9 GB at 35 bytes a row, so that
+// what it writes stays below max_episode_file_bytes for read_episodes.
+inline constexpr long long max_written_rows = 25000000;
+
 }  // namespace dobudget::io

@@ -19,7 +19,8 @@ enum class Purpose : std::uint64_t {
   planner = 6,      // belief points for point-based value iteration
   rollout = 7,      // rollouts for return_gap, shared by every strategy and budget of a replicate
   bootstrap = 8,    // percentile bootstrap of the answer
-  records_fit = 9,  // fits of the team's records (model_selection.hpp): starts and episode folds
+  records = 9,      // episodes written by `dobudget simulate` (sub 0: logged, 1: pilot; episode_records.hpp)
+  records_fit = 10, // fits of the team's records (model_selection.hpp): starts and episode folds
 };
 
 using Engine = boost::random::mt19937_64;
