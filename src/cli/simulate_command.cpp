@@ -10,6 +10,7 @@
 #include "core/world/episode_records.hpp"
 #include "io/atomic_file.hpp"
 #include "io/episode_file.hpp"
+#include "io/records_study.hpp"
 #include "io/study_file.hpp"
 
 namespace dobudget::cli {
@@ -22,7 +23,8 @@ int simulate_command(const SimulateArgs& args) {
   if (!args.codebook_out.empty() &&
       std::filesystem::weakly_canonical(args.codebook_out) == std::filesystem::weakly_canonical(args.out))
     throw BadInput("--codebook-out: names the same file as --out");
-  const Study study = io::load_study(args.study);
+  Study study = io::load_study(args.study);
+  io::prepare_records(study);  // a study from records: its worlds are plausible worlds (records_study.hpp)
   const ScenarioSettings& s = study.scenarios.front().settings;
   const int draws = s.environment.given ? 1 : s.environment.draws;
   const auto draw = args.draw.empty() ? 0 : static_cast<int>(whole_option("--draw", args.draw, 0, draws - 1));
