@@ -27,7 +27,7 @@ const std::vector<StudyKey>& study_keys() {
       {"environment.horizon", "whole number", "8", "1 .. 10^4", K::whole, "steps per episode (H)"},
       {"environment.discount", "number", "1", "in (0, 1]", K::number,
        "discount of rewards in the return (planning and the return gap)"},
-      {"environment.draws", "whole number", "4", "1 .. 10^5; exactly 1 with a given model", K::whole,
+      {"environment.draws", "whole number", "4", "1 .. 10^5; exactly 1 with a given model; default 16 with `data`", K::whole,
        "synthetic environments drawn per scenario (the worlds the answer rests on)"},
       {"environment.dynamics_concentration", "number", "0.5", "greater than 0", K::number,
        "Dirichlet concentration of each transition row: small values give sharp (nearly deterministic) dynamics"},

@@ -14,12 +14,14 @@
 #include <string>
 #include <vector>
 
+#include <fmt/format.h>
 #include <yaml-cpp/yaml.h>
 
 #include "io/input_error.hpp"
 #include "io/study_file.hpp"
 #include "io/study_keys.hpp"
 #include "io/study_reference.hpp"
+#include "temp_dir.hpp"
 
 using namespace dobudget;
 using dobudget::test::error_of;
@@ -33,6 +35,37 @@ std::string with_key(const std::string& path, const std::string& value) {
   const std::size_t dot = path.find('.');
   if (dot == std::string::npos) return path + ": " + value + "\n";
   return path.substr(0, dot) + ":\n  " + path.substr(dot + 1) + ": " + value + "\n";
+}
+
+// Keys that only validate beside another key: precision.* needs the range form of budgets.pilot;
+// environment.codebook, latent_states, prior_concentration and records need environment.data.
+const std::string range_budgets = "budgets:\n  pilot: {from: 10, to: 1000}\n";
+
+bool needs_records(const std::string& path) {
+  for (const char* k : {"environment.codebook", "environment.latent_states", "environment.prior_concentration",
+                        "environment.records"})
+    if (path == k) return true;
+  return false;
+}
+
+// A small episodes file (the format of io/episode_file.hpp) for the keys that need records.
+const std::string& records_file() {
+  static const dobudget::test::TempDir dir("dobudget_study_keys");
+  static const std::string file =
+      dir.write("episodes.csv",
+                "episode,step,observation,action,regime\n"
+                "e1,0,x,a,logged\ne1,1,y,b,logged\ne1,2,x,,logged\n"
+                "e2,0,y,b,logged\ne2,1,y,,logged\n")
+          .string();
+  return file;
+}
+const std::string records_environment() { return "environment:\n  data: \"" + records_file() + "\"\n"; }
+
+// A study text that sets `path` to `value` with whatever the key needs beside it.
+std::string study_with(const std::string& path, const std::string& value) {
+  if (path.rfind("precision.", 0) == 0) return range_budgets + with_key(path, value);
+  if (needs_records(path)) return records_environment() + "  " + path.substr(12) + ": " + value + "\n";
+  return with_key(path, value);
 }
 
 // The names listed after "expected one of: " in a message about an unknown key.
@@ -63,6 +96,7 @@ std::vector<std::string> accepted_paths() {
     if (k == "sweep") continue;  // its keys are the sweepable paths (checked below)
     std::string text = k + ":\n  " + unknown + ": 1\n";
     if (k == "targets") text = "measures: [model_kl, return_gap]\n" + text;
+    if (k == "precision") text = range_budgets + text;
     try {
       parse(text);
     } catch (const io::InputError& e) {
@@ -154,6 +188,30 @@ TEST_CASE("the table's defaults are the ones the validator fills in", "[study_ke
       CHECK(std::string(row->default_text) == value_text(value));
     }
   }
+  // Keys that only exist beside another key: their defaults in the resolved study of such a study.
+  {
+    const YAML::Node r = YAML::Load(io::resolved_yaml(parse(range_budgets + "name: example\n")));
+    for (const auto& child : r["precision"]) {
+      const std::string path = "precision." + child.first.Scalar();
+      const io::StudyKey* row = io::find_study_key(path);
+      INFO(path);
+      REQUIRE(row != nullptr);
+      written.insert(path);
+      CHECK(std::string(row->default_text) == value_text(child.second));
+    }
+  }
+  {
+    // A study from records is resolved only once its records are fitted: its defaults are read
+    // from the parsed settings instead.
+    const Study st = parse(records_environment() + "name: example\n");
+    const RecordsSettings& r = *st.scenarios.front().settings.environment.records;
+    CHECK(std::string(io::find_study_key("environment.prior_concentration")->default_text) == fmt::format("{}", r.concentration));
+    CHECK(std::string(io::find_study_key("environment.latent_states")->default_text) == (r.latent_states == 0 ? "auto" : ""));
+    CHECK(std::string(io::find_study_key("environment.codebook")->default_text) == (r.codebook.empty() ? "none" : ""));
+    CHECK(std::string(io::find_study_key("environment.draws")->allowed).find("default 16 with `data`") != std::string::npos);
+    CHECK(st.scenarios.front().settings.environment.draws == 16);
+    for (const char* k : {"environment.prior_concentration", "environment.latent_states"}) written.insert(k);
+  }
   // Rows without a default value in the resolved study: sections, the given model, return_gap's target.
   for (const io::StudyKey& k : io::study_keys()) {
     if (k.type == "section" || written.count(std::string(k.path))) continue;
@@ -174,12 +232,12 @@ TEST_CASE("the table's whole-number limits are the validator's", "[study_keys]")
     high = limit_text(high.substr(0, high.find_first_of(" ;")));
     const std::string path(k.path);
     INFO(path << " allowed " << allowed);
-    CHECK_NOTHROW(parse(with_key(path, low)));
-    CHECK_NOTHROW(parse(with_key(path, high)));
+    CHECK_NOTHROW(parse(study_with(path, low)));
+    CHECK_NOTHROW(parse(study_with(path, high)));
     const std::string below = low == "0" ? "-1" : std::to_string(std::stoull(low) - 1);
     const std::string above = high == "18446744073709551615" ? "18446744073709551616" : std::to_string(std::stoull(high) + 1);
-    CHECK(error_of([&] { parse(with_key(path, below)); }).key == path);
-    CHECK(error_of([&] { parse(with_key(path, above)); }).key == path);
+    CHECK(error_of([&] { parse(study_with(path, below)); }).key == path);
+    CHECK(error_of([&] { parse(study_with(path, above)); }).key == path);
     ++checked;
   }
   CHECK(checked >= 15);
@@ -201,7 +259,7 @@ TEST_CASE("the table's number ranges are the validator's", "[study_keys]") {
       v.precision(17);
       v << x;
       try {
-        parse(prefix + with_key(path, v.str()));
+        parse(prefix + study_with(path, v.str()));
         return true;
       } catch (const io::InputError& e) {
         CHECK(e.key == path);
