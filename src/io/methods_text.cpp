@@ -199,6 +199,20 @@ std::vector<std::string> methods_paragraphs(const MethodsInput& in) {
         "steps per episode): one world, with {} replicates of the data.",
         sweep.empty() ? fmt::format("The study {}", study.name) : std::string("It"), m.states, m.actions,
         m.observations, horizon, value_of(sweep, "replicates", std::to_string(s.replicates)));
+  } else if (e.records) {
+    const RecordsSettings& r = *e.records;
+    p += fmt::format(
+        "{} planned from the team's own records ({} logged and {} pilot episodes, the longest of {} steps): a "
+        "regime-aware latent model with {} latent values was fitted to them, and {} plausible worlds were drawn from "
+        "its approximate posterior (each probability row from a Dirichlet distribution with the expected counts of "
+        "the records plus a prior concentration of {}, so that the worlds agree where the records are rich and "
+        "differ where they are silent), each with its own fitted decision rule as the logger; horizon {} steps, {} "
+        "replicates of the data in each world: {} (world, replicate) pairs.",
+        sweep.empty() ? fmt::format("The study {}", study.name) : std::string("It"), r.logged_episodes,
+        r.pilot_episodes, r.longest_episode, e.family.states,
+        value_of(sweep, "environment.draws", std::to_string(e.draws)),
+        value_of(sweep, "environment.prior_concentration", number(r.concentration)), horizon,
+        value_of(sweep, "replicates", std::to_string(s.replicates)), pairs);
   } else {
     p += fmt::format(
         "{} simulated {} worlds (environment draws) from a synthetic family of finite partially observable "
@@ -215,7 +229,9 @@ std::vector<std::string> methods_paragraphs(const MethodsInput& in) {
         value_of(sweep, "replicates", std::to_string(s.replicates)), pairs);
   }
   const bool given_logger = e.given && e.given->logging_policy.size() > 0;
-  if (given_logger) {
+  if (e.records) {
+    // The worlds' loggers are the fitted decision rules (above).
+  } else if (given_logger) {
     p += " Logged episodes followed the logging policy given with the model (the loggers' choices depend on the "
          "hidden state).";
   } else {
@@ -316,9 +332,13 @@ std::vector<std::string> methods_paragraphs(const MethodsInput& in) {
   // 5. Assumptions.
   {
     std::string a = "Assumptions. ";
-    a += e.given ? "The real problem behaves like the given model; "
-                 : "The real problem behaves like a member of the synthetic family at these sizes; ";
-    a += given_logger ? "the loggers decided as the given logging policy says; "
+    a += e.given     ? "The real problem behaves like the given model; "
+         : e.records ? "The real problem behaves like one of the plausible worlds of the records' fit (a latent model "
+                       "of the chosen size; where the records are silent, the prior concentration decides how widely "
+                       "the worlds differ); "
+                     : "The real problem behaves like a member of the synthetic family at these sizes; ";
+    a += e.records ? "the loggers decided as the fitted decision rule says; "
+         : given_logger ? "the loggers decided as the given logging policy says; "
                       : "the loggers decided as the logging model above says (how much of the hidden state they saw is "
                         "the privilege); ";
     a += "pilot actions depend only on the recorded history (never on the hidden state); episodes are independent "

@@ -15,6 +15,7 @@
 #include "input_error_of.hpp"
 #include "io/episode_file.hpp"
 #include "io/records_study.hpp"
+#include "io/methods_text.hpp"
 #include "io/study_file.hpp"
 #include "temp_dir.hpp"
 
@@ -162,4 +163,24 @@ TEST_CASE("records study: refusals name the key", "[records_study]") {
   Study st = io::load_study(dir.write("sweep.yaml", records_study + "sweep: { environment.prior_concentration: [0.5, 4] }\n"));
   REQUIRE(st.scenarios.size() == 2);
   CHECK(st.scenarios[1].settings.environment.records->concentration == 4.0);
+}
+
+TEST_CASE("records study: the methods paragraph says the worlds come from the records", "[records_study]") {
+  // The report's methods text (methods_text.hpp) must describe what was simulated: for a study from
+  // records, the records' counts, the fitted latent size, the number of plausible worlds and the
+  // prior concentration, not the synthetic family.
+  TempDir dir;
+  write_records(dir);
+  const auto file = dir.write("study.yaml", records_study);
+  Study st = io::load_study(file);
+  io::prepare_records(st);
+  const std::vector<AnswerRow> none;
+  const std::vector<std::string> p = io::methods_paragraphs({&st, &none, 1000});
+  REQUIRE(!p.empty());
+  const int states = st.scenarios.front().settings.environment.family.states;
+  CHECK(p[0].find("120 logged and 15 pilot episodes") != std::string::npos);
+  CHECK(p[0].find(std::to_string(states) + " latent values") != std::string::npos);
+  CHECK(p[0].find("16 plausible worlds") != std::string::npos);
+  CHECK(p[0].find("prior concentration of 1") != std::string::npos);
+  CHECK(p[0].find("synthetic family") == std::string::npos);
 }
