@@ -378,6 +378,15 @@ class StudyParser {
     ScenarioSettings s;
     s.environment = environment(top);
 
+    // The worlds of a study from records carry their own loggers (the fitted decision rule), so the
+    // logging model does not apply to them: refused rather than silently ignored.
+    if (s.environment.records) {
+      const char* why = "does not apply to a study from records (environment.data): each plausible world's loggers "
+                        "are the decision rule fitted to the records";
+      if (const std::optional<Located> v = get(top, "logging")) in_.fail(*v, why);
+      for (const auto& [path, value] : overrides_)
+        if (path.rfind("logging.", 0) == 0) in_.fail(value, why);
+    }
     const Section logging = section(top, "logging", logging_keys);
     s.logging.privilege = number(logging, "privilege", s.logging.privilege, unit_interval);
     s.logging.temperature = number(logging, "temperature", s.logging.temperature, positive);
@@ -875,11 +884,13 @@ std::string resolved_yaml(const Study& study) {
   }
   out << YAML::EndMap;
 
-  out << YAML::Key << "logging" << YAML::Value << YAML::BeginMap;
-  put_number("logging.privilege", "privilege", s.logging.privilege);
-  put_number("logging.temperature", "temperature", s.logging.temperature);
-  put_number("logging.q_discount", "q_discount", s.logging.q_discount);
-  out << YAML::EndMap;
+  if (!e.records) {  // a study from records has no logging model (its worlds carry their loggers)
+    out << YAML::Key << "logging" << YAML::Value << YAML::BeginMap;
+    put_number("logging.privilege", "privilege", s.logging.privilege);
+    put_number("logging.temperature", "temperature", s.logging.temperature);
+    put_number("logging.q_discount", "q_discount", s.logging.q_discount);
+    out << YAML::EndMap;
+  }
 
   out << YAML::Key << "pilot" << YAML::Value << YAML::BeginMap;
   put("pilot.policy", "policy", std::string(name(s.pilot.policy)));

@@ -154,6 +154,9 @@ TEST_CASE("records study: refusals name the key", "[records_study]") {
   CHECK(bad("environment: { data: missing.csv }\n").key == "environment.data");
   CHECK(bad("environment: { data: episodes.csv }\nmeasures: [return_gap]\ntargets: { return_gap: 0.1 }\n").key == "measures");
   CHECK(bad("environment: { data: episodes.csv }\nsweep: { environment.data: [a.csv] }\n").key.find("sweep") == 0);
+  // The worlds carry their loggers: a logging model is refused, written or swept.
+  CHECK(bad("environment: { data: episodes.csv }\nlogging: { privilege: 0.5 }\n").key == "logging");
+  CHECK(bad("environment: { data: episodes.csv }\nsweep: { logging.privilege: [0, 1] }\n").key.find("logging") != std::string::npos);
   // A bad record is reported in the episodes file, at its line.
   dir.write("broken.csv", "episode,step,observation,action,regime\ne,0,o0,a0,logged\ne,1,o1,a0,logged\n");
   const io::InputError e = bad("environment: { data: broken.csv }\n");
