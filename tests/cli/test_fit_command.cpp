@@ -14,6 +14,7 @@
 #include "core/world/dataset.hpp"
 #include "io/episode_file.hpp"
 #include "io/model_file.hpp"
+#include "../two_state_world.hpp"
 
 using namespace cli_test;
 using namespace dobudget;
@@ -22,27 +23,7 @@ namespace {
 
 // Two hidden states, two actions, three symbols (numbers chosen here); the logger never takes
 // action 1 in state 0.
-Environment two_state_world(int horizon) {
-  Environment env;
-  Pomdp& m = env.model;
-  m.states = 2;
-  m.actions = 2;
-  m.observations = 3;
-  m.horizon = horizon;
-  m.initial.resize(2);
-  m.initial << 0.7, 0.3;
-  Matrix stay(2, 2), move(2, 2);
-  stay << 0.9, 0.1, 0.2, 0.8;
-  move << 0.3, 0.7, 0.6, 0.4;
-  m.transitions = {stay, move};
-  m.emissions.resize(2, 3);
-  m.emissions << 0.8, 0.15, 0.05, 0.1, 0.2, 0.7;
-  m.rewards.resize(3);
-  m.rewards << 1.0, 0.0, -1.0;
-  env.logging_policy.resize(2, 2);
-  env.logging_policy << 1.0, 0.0, 0.35, 0.65;
-  return env;
-}
+Environment two_state_world(int horizon) { return test::two_state_world({horizon, 0.7, 0.9, 0.8, 1.0, 0.35, true}); }
 
 // Episodes of the world written as the import format, with its codebook.
 void write_records(const std::filesystem::path& dir, int logged, int pilot, int horizon) {

@@ -18,6 +18,7 @@
 #include "io/methods_text.hpp"
 #include "io/study_file.hpp"
 #include "temp_dir.hpp"
+#include "../two_state_world.hpp"
 
 using namespace dobudget;
 using dobudget::test::error_of;
@@ -25,27 +26,7 @@ using dobudget::test::TempDir;
 
 namespace {
 
-Environment world() {
-  Environment env;
-  Pomdp& m = env.model;
-  m.states = 2;
-  m.actions = 2;
-  m.observations = 3;
-  m.horizon = 5;
-  m.initial.resize(2);
-  m.initial << 0.6, 0.4;
-  Matrix stay(2, 2), move(2, 2);
-  stay << 0.9, 0.1, 0.2, 0.8;
-  move << 0.3, 0.7, 0.6, 0.4;
-  m.transitions = {stay, move};
-  m.emissions.resize(2, 3);
-  m.emissions << 0.8, 0.15, 0.05, 0.1, 0.2, 0.7;
-  m.rewards.resize(3);
-  m.rewards << 1, 0, -1;
-  env.logging_policy.resize(2, 2);
-  env.logging_policy << 0.9, 0.1, 0.3, 0.7;
-  return env;
-}
+Environment world() { return test::two_state_world({5, 0.6, 0.9, 0.8, 0.9, 0.3, true}); }
 
 // 120 logged episodes (every fourth stops after 2 actions) and 15 pilot ones, with a codebook.
 void write_records(const TempDir& dir, std::uint64_t seed = 4) {

@@ -22,6 +22,7 @@
 #include "core/fitting/fit.hpp"
 #include "core/fitting/model_selection.hpp"
 #include "core/world/dataset.hpp"
+#include "../../two_state_world.hpp"
 
 using namespace dobudget;
 
@@ -29,26 +30,7 @@ namespace {
 
 // Two hidden states that emit distinct symbols, two actions, three symbols (numbers chosen here).
 // The logger in state 0 never takes action 1.
-Environment two_state_environment(int horizon) {
-  Environment env;
-  Pomdp& m = env.model;
-  m.states = 2;
-  m.actions = 2;
-  m.observations = 3;
-  m.horizon = horizon;
-  m.initial.resize(2);
-  m.initial << 0.7, 0.3;
-  Matrix stay(2, 2), move(2, 2);
-  stay << 0.9, 0.1, 0.2, 0.8;
-  move << 0.3, 0.7, 0.6, 0.4;
-  m.transitions = {stay, move};
-  m.emissions.resize(2, 3);
-  m.emissions << 0.8, 0.15, 0.05, 0.1, 0.2, 0.7;
-  m.rewards = Vector::Zero(3);
-  env.logging_policy.resize(2, 2);
-  env.logging_policy << 1.0, 0.0, 0.35, 0.65;
-  return env;
-}
+Environment two_state_environment(int horizon) { return test::two_state_world({horizon, 0.7, 0.9, 0.8, 1.0, 0.35, false}); }
 
 FitSettings quick_fit() {
   FitSettings f;

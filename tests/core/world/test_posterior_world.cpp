@@ -15,6 +15,7 @@
 #include "core/fitting/model_selection.hpp"
 #include "core/world/dataset.hpp"
 #include "core/world/posterior_world.hpp"
+#include "../../two_state_world.hpp"
 
 using namespace dobudget;
 
@@ -22,26 +23,7 @@ namespace {
 
 // 2 hidden states, 2 actions, 3 symbols (numbers chosen here); the logger never takes action 1 in
 // state 0, and always takes it in state 1.
-Environment silent_pair_environment(int horizon) {
-  Environment env;
-  Pomdp& m = env.model;
-  m.states = 2;
-  m.actions = 2;
-  m.observations = 3;
-  m.horizon = horizon;
-  m.initial.resize(2);
-  m.initial << 0.6, 0.4;
-  Matrix stay(2, 2), move(2, 2);
-  stay << 0.85, 0.15, 0.25, 0.75;
-  move << 0.3, 0.7, 0.6, 0.4;
-  m.transitions = {stay, move};
-  m.emissions.resize(2, 3);
-  m.emissions << 0.8, 0.15, 0.05, 0.1, 0.2, 0.7;
-  m.rewards = Vector::Zero(3);
-  env.logging_policy.resize(2, 2);
-  env.logging_policy << 1.0, 0.0, 0.4, 0.6;
-  return env;
-}
+Environment silent_pair_environment(int horizon) { return test::two_state_world({horizon, 0.6, 0.85, 0.75, 1.0, 0.4, false}); }
 
 }  // namespace
 
