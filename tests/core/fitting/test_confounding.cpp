@@ -26,44 +26,14 @@
 #include "core/measures/model_kl.hpp"
 #include "core/world/pomdp.hpp"
 #include "core/world/seeding.hpp"
+#include "../confounded_world.hpp"
 
 using namespace dobudget;
 
 namespace {
 
-Environment cf_environment() {
-  Environment env;
-  Pomdp& m = env.model;
-  m.states = 2;
-  m.actions = 2;
-  m.observations = 2;
-  m.horizon = 1;
-  m.initial = Vector::Constant(2, 0.5);
-  Matrix keep(2, 2), swap(2, 2);
-  keep << 0.95, 0.05, 0.05, 0.95;
-  swap << 0.05, 0.95, 0.95, 0.05;
-  m.transitions = {keep, swap};
-  m.emissions.resize(2, 2);
-  m.emissions << 0.9, 0.1, 0.3, 0.7;
-  m.rewards = Vector::Zero(2);
-  env.logging_policy.resize(2, 2);
-  env.logging_policy << 0.95, 0.05, 0.05, 0.95;
-  return env;
-}
-
-// p(o_1 = 0 | o_0, a) in closed form: observational (weight by pi(a | s)) or interventional (do(a)).
-double cf_closed_form(const Environment& env, int o0, int a, bool interventional) {
-  const Pomdp& m = env.model;
-  double post[2], z = 0.0;
-  for (int s = 0; s < 2; ++s) {
-    post[s] = m.initial(s) * m.emissions(s, o0) * (interventional ? 1.0 : env.logging_policy(s, a));
-    z += post[s];
-  }
-  double p = 0.0;
-  for (int s = 0; s < 2; ++s)
-    for (int s2 = 0; s2 < 2; ++s2) p += post[s] / z * m.transitions[static_cast<std::size_t>(a)](s, s2) * m.emissions(s2, 0);
-  return p;
-}
+using test::cf_closed_form;
+using test::cf_environment;
 
 // A fitted model's predictive q(o_1 = 0 | o_0, do(a_0)) by belief filtering (model_kl.hpp predictives()),
 // for the four histories (o_0, a_0), indexed 2 * o_0 + a_0.
