@@ -12,6 +12,7 @@
 #include "io/episode_file.hpp"
 #include "io/records_study.hpp"
 #include "io/study_file.hpp"
+#include "io/text_escape.hpp"
 
 namespace dobudget::cli {
 
@@ -38,15 +39,15 @@ int simulate_command(const SimulateArgs& args) {
 
   EpisodeRecordsOfWorld sim = simulate_records(s, study.seed, draw, seed, logged, pilot);
   const io::EpisodeRecords records = io::numbered_records(sim.world.model, std::move(sim.logged), std::move(sim.pilot));
+  // The codebook first: a failure then leaves no episodes file without its codebook.
+  if (!args.codebook_out.empty()) io::write_file_atomically(args.codebook_out, io::codebook_yaml(records.codebook));
   io::write_episodes(args.out, records);
   std::printf("%s: %d logged and %d pilot episodes of %d actions (%lld rows) of world %d of study %s%s\n",
-              args.out.c_str(), logged, pilot, s.environment.horizon, rows, draw, args.study.c_str(),
-              study.scenarios.size() > 1 ? " (scenario 0 of its sweep)" : "");
-  if (!args.codebook_out.empty()) {
-    io::write_file_atomically(args.codebook_out, io::codebook_yaml(records.codebook));
-    std::printf("%s: codebook (%d observation codes with their rewards, %d action codes)\n", args.codebook_out.c_str(),
-                sim.world.model.observations, sim.world.model.actions);
-  }
+              io::printable_line(args.out).c_str(), logged, pilot, s.environment.horizon, rows, draw,
+              io::printable_line(args.study).c_str(), study.scenarios.size() > 1 ? " (scenario 0 of its sweep)" : "");
+  if (!args.codebook_out.empty())
+    std::printf("%s: codebook (%d observation codes with their rewards, %d action codes)\n",
+                io::printable_line(args.codebook_out).c_str(), sim.world.model.observations, sim.world.model.actions);
   return 0;
 }
 

@@ -243,6 +243,8 @@ EpisodeRecords read_episodes(const std::filesystem::path& csv_file, const Codebo
 
   std::vector<std::string> f;
   std::int32_t current = -1;  // the episode of the previous row: most rows continue it
+  std::int64_t regime_count[2] = {0, 0};  // episodes per regime (logged, pilot) so far
+  std::int64_t longest_rows = 0;          // rows of the longest episode so far
   while (csv.next(f)) {
     const int line = csv.line();
     // episode
@@ -253,6 +255,11 @@ EpisodeRecords read_episodes(const std::filesystem::path& csv_file, const Codebo
       } else {
         if (const std::string problem = text_problem(f[episode_column]); !problem.empty())
           csv.fail(line, "episode", problem);
+        if (episodes.size() >= max_episodes)
+          csv.fail(line, "episode",
+                   fmt::format("is the {}th episode of the file, more than the {} a file may hold (the largest budget "
+                               "of a study); split the file",
+                               episodes.size() + 1, max_episodes));
         current = static_cast<std::int32_t>(episodes.size());
         episode_index.emplace(f[episode_column], current);
         Episode e;
@@ -307,13 +314,23 @@ EpisodeRecords read_episodes(const std::filesystem::path& csv_file, const Codebo
       csv.fail(line, "regime",
                "is " + shown_text(f[regime_column]) +
                    ", expected logged (recorded under the usual decision-makers) or pilot (under the pilot policy)");
-    if (first_row) e.regime = regime;
-    else if (regime != e.regime)
+    if (first_row) {
+      e.regime = regime;
+      ++regime_count[regime == Regime::logged ? 0 : 1];
+    } else if (regime != e.regime)
       csv.fail(line, "regime",
                fmt::format("is {}, but episode {} is {} (line {}); an episode has one regime",
                            regime == Regime::logged ? "logged" : "pilot", shown_text(e.id),
                            e.regime == Regime::logged ? "logged" : "pilot", e.first_line));
     ++e.rows;
+    longest_rows = std::max<std::int64_t>(longest_rows, e.rows);
+    // The padded storage (episodes x longest) bounded while reading, before it grows.
+    for (int r = 0; r < 2; ++r)
+      if (regime_count[r] * longest_rows > max_episode_slots)
+        csv.fail(line, "step",
+                 fmt::format("{} {} episodes stored with room for the longest ({} steps so far) need more than {} "
+                             "slots; drop the few very long episodes or split the file",
+                             regime_count[r], r == 0 ? "logged" : "pilot", longest_rows, max_episode_slots));
     e.last_line = line;
     e.ended = !has_action;
     row_episode.push_back(current);

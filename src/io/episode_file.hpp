@@ -49,6 +49,7 @@ inline constexpr std::size_t max_text_bytes = 200;     // an episode id or a cod
 inline constexpr int max_codes = 200;                  // of each kind: model_file.hpp's max_model_size
 inline constexpr int max_episode_actions = 10000;      // the longest environment.horizon
 inline constexpr std::int64_t max_episode_slots = std::int64_t{1} << 28;  // 1 GiB of int32 per array
+inline constexpr std::size_t max_episodes = 10000000;  // ids in one file: the largest budget of a study
 
 struct Codebook {
   std::vector<std::string> observations;  // code of observation index k, in order

@@ -80,7 +80,11 @@ std::string fit_markdown(const RecordsFit& f) {
   md += fmt::format("* codes: {} observations, {} actions; rewards {}\n", f.codebook.observations.size(),
                     f.codebook.actions.size(), f.codebook.has_rewards() ? "from the codebook" : "not given (0)");
   md += "\n## Latent size\n\n";
-  if (f.chosen_by == "auto")
+  if (f.chosen_by == "auto" && s.folds == 0)
+    md += "Sizes tried in ascending order. The records hold too few episodes for held-out folds, so the size was "
+          "**chosen by BIC** (Schwarz 1978) = -2 loglik + parameters x ln n, with n the number of observed steps: the "
+          "smallest value wins. More episodes would allow the held-out choice.\n\n";
+  else if (f.chosen_by == "auto")
     md += "Sizes tried in ascending order, stopping after two sizes in a row that did not improve the held-out "
           "log-likelihood. Each size is fitted on all episodes and, for the held-out log-likelihood, on all but one "
           "of the episode folds with the held-out fold scored (every episode scored once). **Chosen**: the size with "

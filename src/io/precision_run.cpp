@@ -1,5 +1,7 @@
 #include "io/precision_run.hpp"
 
+#include "io/csv_records.hpp"
+
 #include <fmt/format.h>
 
 #include <chrono>
@@ -101,8 +103,8 @@ double first_round_core_seconds(const Study& range_study) {
 std::string precision_csv(const std::vector<PrecisionVerdict>& verdicts) {
   std::string out = "scenario,measure,strategy,logged,needed_pilot,low,high,relative_half_width,met,why\n";
   for (const PrecisionVerdict& v : verdicts) {
-    std::string why = v.why;  // program text; quoted because it holds commas and semicolons
-    out += fmt::format("{},{},{},{},{},{},{},{},{},\"{}\"\n", v.row.scenario, name(v.row.measure), name(v.row.strategy),
+    const std::string why = csv_field(v.why);  // quoted: it holds commas and semicolons
+    out += fmt::format("{},{},{},{},{},{},{},{},{},{}\n", v.row.scenario, name(v.row.measure), name(v.row.strategy),
                        v.row.logged, csv_number(v.row.needed_pilot), csv_number(v.row.low), csv_number(v.row.high),
                        csv_number(v.half_width), v.met ? "yes" : "no", why);
   }

@@ -4,7 +4,6 @@
 
 #include <algorithm>
 #include <chrono>
-#include <fstream>
 #include <memory>
 #include <vector>
 
@@ -15,6 +14,12 @@
 #include "io/input_error.hpp"
 #include "io/regular_file.hpp"
 
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <cerrno>
+
 namespace dobudget::io {
 namespace {
 
@@ -24,18 +29,39 @@ void fnv_bytes(std::uint64_t& h, const char* p, std::size_t n) {
   for (std::size_t i = 0; i < n; ++i) h = (h ^ static_cast<unsigned char>(p[i])) * fnv_prime;
 }
 
+// The digest reads the file through the checked open (regular files only: no pipe or device) and
+// never more than the episodes file's bound, so a hostile path in a study cannot make it read
+// forever or block.
 void fnv_file(std::uint64_t& h, const std::filesystem::path& file) {
-  std::ifstream in(file, std::ios::binary);
-  if (!in) throw InputError(file.string(), 0, "", "cannot be read");
+  struct stat info {};
+  const int fd = open_regular_file(file, O_RDONLY, Links::follow, &info);
+  if (fd < 0) throw InputError(file.string(), 0, "", "cannot be read");
+  const auto close_fd = [fd] { ::close(fd); };
+  if (static_cast<std::uintmax_t>(info.st_size) > max_episode_file_bytes) {
+    close_fd();
+    throw InputError(file.string(), 0, "",
+                     fmt::format("holds {} bytes, more than the {} an episodes or codebook file may hold",
+                                 static_cast<std::uintmax_t>(info.st_size), max_episode_file_bytes));
+  }
   std::vector<char> buffer(std::size_t{1} << 20);
   std::uint64_t length = 0;
   std::uint64_t body = fnv_offset;
-  while (in) {
-    in.read(buffer.data(), static_cast<std::streamsize>(buffer.size()));
-    const auto n = static_cast<std::size_t>(in.gcount());
-    fnv_bytes(body, buffer.data(), n);
-    length += n;
+  for (;;) {
+    const ssize_t n = ::read(fd, buffer.data(), buffer.size());
+    if (n < 0 && errno == EINTR) continue;
+    if (n < 0) {
+      close_fd();
+      throw InputError(file.string(), 0, "", "cannot be read");
+    }
+    if (n == 0) break;
+    length += static_cast<std::uint64_t>(n);
+    if (length > max_episode_file_bytes) {  // grew while being read
+      close_fd();
+      throw InputError(file.string(), 0, "", "grew past the bound an episodes or codebook file may hold while being read");
+    }
+    fnv_bytes(body, buffer.data(), static_cast<std::size_t>(n));
   }
+  close_fd();
   const std::string prefix = fmt::format("{}:{:016x};", length, body);
   fnv_bytes(h, prefix.data(), prefix.size());
 }

@@ -323,10 +323,16 @@ TEST_CASE("bad episodes files: one message FILE:LINE: column: problem each", "[e
     for (int t = 0; t < 10000; ++t) text += "long," + std::to_string(t) + ",o,a,logged\n";
     text += "long,10000,o,,logged\n";
     for (int i = 0; i < 26844; ++i) text += std::to_string(i) + ",0,o,,logged\n";
+    // Refused at the row where the count first passes: (1 + k) x 10001 > 2^28 first for k = 26840
+    // short episodes, on line 1 (header) + 10001 + 26840, long before the file's end.
     const InputError e = episodes_error(text);
-    CHECK(e.line == 10002);
+    long long k = 0;
+    while ((1 + k) * 10001 <= (1LL << 28)) ++k;
+    CHECK(k == 26840);
+    CHECK(e.line == 1 + 10001 + k);
     CHECK(e.key == "step");
-    CHECK(e.message.find("episode 'long' has 10000 actions, and every one of the 26845 logged episodes is stored") == 0);
+    CHECK(e.message.find("26841 logged episodes stored with room for the longest (10001 steps so far) need more than "
+                         "268435456 slots") == 0);
   }
   SECTION("not a file, no file, too large a file") {
     TempDir dir;

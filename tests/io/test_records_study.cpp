@@ -9,6 +9,8 @@
 
 #include <string>
 
+#include <sys/stat.h>
+
 #include "core/world/dataset.hpp"
 #include "core/world/posterior_world.hpp"
 #include "core/world/synthetic.hpp"
@@ -121,6 +123,12 @@ TEST_CASE("records study: the resolved study follows the records' bytes and need
   write_records(dir, 99);  // changed records at the same place
   const io::InputError e = error_of([&] { io::prepare_records(back); });
   CHECK(e.message.find("the records changed") != std::string::npos);
+  // A pipe where the records were (a hostile or edited resolved study): refused at once, never read
+  // (reading a FIFO with no writer would block forever).
+  std::filesystem::remove(dir.path() / "episodes.csv");
+  REQUIRE(::mkfifo((dir.path() / "episodes.csv").c_str(), 0600) == 0);
+  const io::InputError pipe = error_of([&] { io::prepare_records(back); });
+  CHECK(pipe.message.find("not a regular file") != std::string::npos);
 }
 
 TEST_CASE("records study: refusals name the key", "[records_study]") {
