@@ -5,6 +5,11 @@
 // back-door adjustment (Pearl, "Causality", 2nd ed., 2009, sec. 3.3, theorem 3.3.2) for do(a), or
 // the observational conditional that weights by pi_log(a | s).
 #pragma once
+#include <array>
+#include <vector>
+
+#include "core/measures/model_kl.hpp"
+#include "core/world/dataset.hpp"
 #include "core/world/pomdp.hpp"
 
 namespace dobudget::test {
@@ -40,6 +45,25 @@ inline double cf_closed_form(const Environment& env, int o0, int a, bool interve
   for (int s = 0; s < 2; ++s)
     for (int s2 = 0; s2 < 2; ++s2) p += post[s] / z * m.transitions[static_cast<std::size_t>(a)](s, s2) * m.emissions(s2, 0);
   return p;
+}
+
+// A fitted model's predictive q(o_1 = 0 | o_0, do(a_0)) by belief filtering (model_kl.hpp predictives()),
+// for the four histories (o_0, a_0), indexed 2 * o_0 + a_0.
+inline std::array<double, 4> cf_predictive(const Pomdp& model) {
+  Dataset h;
+  h.horizon = 1;
+  h.count = 4;
+  for (int o0 = 0; o0 < 2; ++o0)
+    for (int a = 0; a < 2; ++a) {
+      h.observations.push_back(o0);
+      h.observations.push_back(0);  // o_1: not used by the predictive of o_1
+      h.actions.push_back(a);
+    }
+  std::vector<double> out;
+  predictives(model, h, out);
+  std::array<double, 4> q{};
+  for (int i = 0; i < 4; ++i) q[static_cast<std::size_t>(i)] = out[static_cast<std::size_t>((i * 2 + 1) * 2 + 0)];
+  return q;
 }
 
 }  // namespace dobudget::test

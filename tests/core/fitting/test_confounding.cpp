@@ -35,24 +35,7 @@ namespace {
 using test::cf_closed_form;
 using test::cf_environment;
 
-// A fitted model's predictive q(o_1 = 0 | o_0, do(a_0)) by belief filtering (model_kl.hpp predictives()),
-// for the four histories (o_0, a_0), indexed 2 * o_0 + a_0.
-std::array<double, 4> cf_predictive(const Pomdp& model) {
-  Dataset h;
-  h.horizon = 1;
-  h.count = 4;
-  for (int o0 = 0; o0 < 2; ++o0)
-    for (int a = 0; a < 2; ++a) {
-      h.observations.push_back(o0);
-      h.observations.push_back(0);  // o_1: not used by the predictive of o_1
-      h.actions.push_back(a);
-    }
-  std::vector<double> out;
-  predictives(model, h, out);
-  std::array<double, 4> q{};
-  for (int i = 0; i < 4; ++i) q[static_cast<std::size_t>(i)] = out[static_cast<std::size_t>((i * 2 + 1) * 2 + 0)];
-  return q;
-}
+using test::cf_predictive;
 
 // The MAP objective of fit.hpp for horizon-1 data, computed here independently of forward_backward.cpp:
 //   sum_pilot log sum_z q0(z) qE(z,o0) sum_z' qT[a](z,z') qE(z',o1)

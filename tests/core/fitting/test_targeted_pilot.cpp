@@ -20,22 +20,7 @@ namespace {
 using test::cf_closed_form;
 using test::cf_environment;
 
-std::array<double, 4> cf_predictive(const Pomdp& model) {
-  Dataset h;
-  h.horizon = 1;
-  h.count = 4;
-  for (int o0 = 0; o0 < 2; ++o0)
-    for (int a = 0; a < 2; ++a) {
-      h.observations.push_back(o0);
-      h.observations.push_back(0);
-      h.actions.push_back(a);
-    }
-  std::vector<double> out;
-  predictives(model, h, out);
-  std::array<double, 4> q{};
-  for (int i = 0; i < 4; ++i) q[static_cast<std::size_t>(i)] = out[static_cast<std::size_t>((i * 2 + 1) * 2 + 0)];
-  return q;
-}
+using test::cf_predictive;
 
 }  // namespace
 
