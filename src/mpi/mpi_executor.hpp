@@ -110,11 +110,24 @@ class Coordinator {
   void release_workers();
   // Units computed (and delivered) by each rank so far: how the dynamic distribution balanced.
   const std::vector<std::size_t>& units_by_rank() const { return units_by_rank_; }
+  // ASSIGN messages sent so far (each a batch of units).
+  std::size_t batches() const { return batches_; }
+  // CPU seconds rank 0's main thread spent serving the workers (handing out, receiving, journaling
+  // their units, polling): units of ranks 1..P-1 divided by it is the rate rank 0 can hand out.
+  double serving_cpu_seconds() const { return serving_cpu_seconds_; }
+  // Of it, the CPU seconds spent on messages (receiving, journaling, replying): without the idle
+  // polls, which a busy rank 0 no longer makes. And the RESULT messages received.
+  double handling_cpu_seconds() const { return handling_cpu_seconds_; }
+  std::size_t result_messages() const { return result_messages_; }
 
  private:
   int size_;
   bool workers_stopped_ = false;
   std::vector<std::size_t> units_by_rank_;
+  std::size_t batches_ = 0;
+  double serving_cpu_seconds_ = 0.0;
+  double handling_cpu_seconds_ = 0.0;
+  std::size_t result_messages_ = 0;
 };
 
 // Ranks 1..P-1: announce `threads` slots to rank 0, compute the units it assigns on that many
