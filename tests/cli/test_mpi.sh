@@ -154,7 +154,12 @@ for _ in $(seq 1200); do
   sleep 0.05
 done
 rank0=""
-for pid in $(pgrep -P "$job" || true); do # mpirun's children; rank 0 by its environment (OpenMPI)
+for status in /proc/[0-9]*/status; do # mpirun's children; rank 0 by its environment (OpenMPI)
+  ppid=""
+  while read -r key value; do [[ $key == PPid: ]] && ppid=$value && break; done <"$status" 2>/dev/null || true
+  [[ $ppid == "$job" ]] || continue
+  pid=${status#/proc/}
+  pid=${pid%/status}
   tr '\0' '\n' <"/proc/$pid/environ" 2>/dev/null | grep -qx OMPI_COMM_WORLD_RANK=0 && rank0=$pid
 done
 if [[ -n $rank0 ]]; then kill -TERM "$rank0"; else kill -TERM "$job" 2>/dev/null || true; fi
