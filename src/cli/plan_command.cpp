@@ -6,6 +6,7 @@
 #include <unistd.h>
 
 #include <algorithm>
+#include <numeric>
 #include <cmath>
 #include <atomic>
 #include <csignal>
@@ -310,9 +311,19 @@ int plan_on_ranks(const PlanArgs& args, const mpi::Session& session) {
     try {
       const int code = plan_and_report(*study, resolved, opt, args.quiet, session.size());
       coordinator.release_workers();
-      if (!args.quiet)
+      if (!args.quiet) {
         std::fprintf(stderr, "units computed by MPI ranks 0..%d: %s\n", session.size() - 1,
                      fmt::format("{}", fmt::join(coordinator.units_by_rank(), " ")).c_str());
+        const auto& by_rank = coordinator.units_by_rank();
+        const std::size_t remote = std::accumulate(by_rank.begin() + 1, by_rank.end(), std::size_t{0});
+        const double cpu = coordinator.serving_cpu_seconds();
+        const double busy = coordinator.handling_cpu_seconds();
+        std::fprintf(stderr,
+                     "MPI hand-out: %zu units to ranks 1..%d in %zu batches, back in %zu messages; rank 0's main "
+                     "thread used %.3f s of CPU serving them, %.3f s of it on messages (%.0f units per CPU second)\n",
+                     remote, session.size() - 1, coordinator.batches(), coordinator.result_messages(), cpu, busy,
+                     busy > 0 ? static_cast<double>(remote) / busy : 0.0);
+      }
       return code;
     } catch (...) {
       coordinator.release_workers();  // e.g. a directory of another study: no unit was handed out

@@ -8,6 +8,7 @@
 #include <chrono>
 #include <condition_variable>
 #include <cstdio>
+#include <ctime>
 #include <deque>
 #include <exception>
 #include <map>
@@ -72,25 +73,41 @@ class DrawContextCache {
   std::map<std::pair<int, int>, std::shared_ptr<Handle::Slot>> slots_;
 };
 
-// A RESULT message is the unit's units.journal record (io/journal.hpp): "<unit index> TAB <CRC-32>
-// TAB <rows>" LF, each row a runs.csv line and ",<fit_seconds>" in the shortest text that reads
-// back to the same double, so a unit computed on another rank is recorded exactly as if computed
-// here, and a message garbled in transit is caught by the checksum.
-std::pair<std::size_t, std::vector<RunRecord>> decode_result(const std::string& text, const std::vector<UnitId>& units,
-                                                             int rank) {
+// A RESULT message holds the units.journal records (io/journal.hpp) of one or more units, each
+// "<unit index> TAB <CRC-32> TAB <rows>" LF, each row a runs.csv line and ",<fit_seconds>" in the
+// shortest text that reads back to the same double, so a unit computed on another rank is recorded
+// exactly as if computed here, and a message garbled in transit is caught by the checksums.
+std::vector<std::pair<std::size_t, std::vector<RunRecord>>> decode_results(const std::string& text,
+                                                                           const std::vector<UnitId>& units, int rank) {
   std::size_t intact = 0;
   bool torn = false;
   const std::string source = fmt::format("MPI result from rank {}", rank);
   auto records = io::Journal::parse(text, &intact, &torn, source);
-  if (torn || records.size() != 1 || intact != text.size())
-    throw std::runtime_error(source + ": not one intact unit record");
-  auto& [index, rows] = *records.begin();
-  if (index >= units.size()) throw std::runtime_error(fmt::format("{}: unit {} does not exist", source, index));
-  const UnitId& u = units[index];
-  for (const auto& r : rows)
-    if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
-      throw std::runtime_error(fmt::format("{}: the record of unit {} holds a row of another unit", source, index));
-  return {index, std::move(rows)};
+  if (torn || records.empty() || intact != text.size())
+    throw std::runtime_error(source + ": not a sequence of intact unit records");
+  std::vector<std::pair<std::size_t, std::vector<RunRecord>>> out;
+  out.reserve(records.size());
+  for (auto& [index, rows] : records) {
+    if (index >= units.size()) throw std::runtime_error(fmt::format("{}: unit {} does not exist", source, index));
+    const UnitId& u = units[index];
+    for (const auto& r : rows)
+      if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
+        throw std::runtime_error(fmt::format("{}: the record of unit {} holds a row of another unit", source, index));
+    out.emplace_back(index, std::move(rows));
+  }
+  return out;
+}
+
+// Guided self-scheduling (C. D. Polychronopoulos and D. J. Kuck, "Guided self-scheduling: a
+// practical scheduling scheme for parallel supercomputers", IEEE Trans. Computers 36(12), 1987):
+// a free slot takes ceil(R / S) of the R units left, S the compute threads of all ranks, so
+// batches are large while much is left and shrink to one unit at the end. Here the divisor is 2S
+// (half of GSS's batch, as in factoring, Hummel, Schonberg and Flynn, CACM 35(8), 1992), so that a
+// batch holding slower units than average still finishes before the others run dry: the tail is
+// balanced to within about one unit per thread, as when units went one at a time.
+std::size_t batch_size(std::size_t remaining, std::size_t slots_total) {
+  const std::size_t d = 2 * std::max<std::size_t>(1, slots_total);
+  return std::max<std::size_t>(1, (remaining + d - 1) / d);
 }
 
 // Units assigned to a worker but not started when a stop comes are cut short at once: moved from
@@ -124,6 +141,13 @@ class Backoff {
 Micros poll_cap(double mean_unit_seconds) {
   const auto cap = static_cast<long long>(mean_unit_seconds * 1e6 / 100);
   return Micros(std::clamp<long long>(cap, 1000, 10000));
+}
+
+// CPU seconds used by the calling thread (POSIX CLOCK_THREAD_CPUTIME_ID).
+double thread_cpu_seconds() {
+  timespec t{};
+  clock_gettime(CLOCK_THREAD_CPUTIME_ID, &t);
+  return static_cast<double>(t.tv_sec) + 1e-9 * static_cast<double>(t.tv_nsec);
 }
 
 double seconds_since(Clock::time_point t) { return std::chrono::duration<double>(Clock::now() - t).count(); }
@@ -199,10 +223,16 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
   double unit_seconds = 0.0;  // summed over finished units (remote: from ASSIGN to RESULT)
   std::size_t units_timed = 0;
   DrawContextCache cache;  // rank 0's own compute threads
-  auto take = [&]() -> std::optional<std::size_t> {
+  // Up to `slots_total` / guided self-scheduling's batch of the units left, for one free slot of a worker.
+  auto take_batch = [&](std::size_t slots_total) {
+    std::vector<unsigned long long> batch;
     std::lock_guard lock(mutex);
-    if (failure || next >= todo.size() || stop.requested()) return std::nullopt;
-    return todo[next++];
+    if (failure || next >= todo.size() || stop.requested()) return batch;
+    const std::size_t n = std::min(batch_size(todo.size() - next, slots_total), todo.size() - next);
+    batch.resize(n);
+    for (std::size_t k = 0; k < n; ++k) batch[k] = todo[next + k];
+    next += n;
+    return batch;
   };
   // A unit for a local thread, with its draw taken from the cache in the order units are handed out.
   auto take_local = [&]() -> std::optional<std::pair<std::size_t, DrawContextCache::Handle>> {
@@ -248,28 +278,41 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
 
   // The main thread serves the other ranks until every one of them has been stopped.
   struct Peer {
-    int slots = 0;
-    int in_flight = 0;
+    int slots = 0;      // 0 until its READY
+    int in_flight = 0;  // units assigned and not answered
+    Clock::time_point last_result{};
   };
   std::vector<Peer> peers(static_cast<std::size_t>(size_));
   std::map<std::size_t, std::pair<int, Clock::time_point>> assigned;  // remote units in flight: rank, ASSIGN time
   int stopped = 0;
   bool cancel_sent = false;
+  // Compute threads of the whole job, for the batch size: a rank not yet READY is counted with
+  // rank 0's number of threads (the same --threads, or the same share of a node's cores).
+  auto slots_total = [&] {
+    std::size_t total = static_cast<std::size_t>(local_threads);
+    for (int r = 1; r < size_; ++r) {
+      const int s = peers[static_cast<std::size_t>(r)].slots;
+      total += static_cast<std::size_t>(s > 0 ? s : std::max(1, threads));
+    }
+    return total;
+  };
   auto refill = [&](int rank) {
     Peer& p = peers[static_cast<std::size_t>(rank)];
-    while (p.in_flight < p.slots) {
-      const auto i = take();
-      if (!i) break;
-      const unsigned long long index = *i;
-      MPI_Send(&index, 1, MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
-      assigned[*i] = {rank, Clock::now()};
-      ++p.in_flight;
+    while (p.in_flight < p.slots) {  // one batch per free slot
+      const std::vector<unsigned long long> batch = take_batch(slots_total());
+      if (batch.empty()) break;
+      MPI_Send(batch.data(), static_cast<int>(batch.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
+      ++batches_;
+      const auto now = Clock::now();
+      for (unsigned long long i : batch) assigned[static_cast<std::size_t>(i)] = {rank, now};
+      p.in_flight += static_cast<int>(batch.size());
     }
     if (p.in_flight == 0) {
       MPI_Send(nullptr, 0, MPI_BYTE, rank, stop_tag, MPI_COMM_WORLD);
       ++stopped;
     }
   };
+  const double cpu_at_start = thread_cpu_seconds();
   try {
     Backoff backoff;
     while (stopped < size_ - 1) {
@@ -292,6 +335,7 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         continue;
       }
       backoff.reset();
+      const double cpu_at_message = thread_cpu_seconds();
       const int rank = status.MPI_SOURCE;
       Peer& p = peers[static_cast<std::size_t>(rank)];
       if (status.MPI_TAG == ready_tag) {
@@ -299,39 +343,56 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         MPI_Recv(&slots, 1, MPI_INT, rank, ready_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
         p.slots = std::max(1, slots);
       } else if (status.MPI_TAG == result_tag) {
+        ++result_messages_;
         int count = 0;
         MPI_Get_count(&status, MPI_CHAR, &count);
         std::string text(static_cast<std::size_t>(count), '\0');
         MPI_Recv(text.data(), count, MPI_CHAR, rank, result_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
-        --p.in_flight;
         try {
-          auto [index, rows] = decode_result(text, units, rank);
-          const auto sent = assigned.find(index);
-          if (sent == assigned.end() || sent->second.first != rank)
-            throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, index));
-          const double seconds = seconds_since(sent->second.second);
-          assigned.erase(sent);
-          deliver(rank, index, std::move(rows), seconds);
+          auto results = decode_results(text, units, rank);
+          // A unit's time, for the poll cap only: from the later of its ASSIGN and this rank's
+          // previous RESULT to now, shared by the units of the message and multiplied by the
+          // threads that were busy on them (units of a batch wait in the worker's queue).
+          const auto now = Clock::now();
+          const int busy = std::max(1, std::min(p.slots, p.in_flight));
+          for (auto& [index, rows] : results) {
+            const auto sent = assigned.find(index);
+            if (sent == assigned.end() || sent->second.first != rank)
+              throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, index));
+            const auto since = std::max(sent->second.second, p.last_result);
+            const double seconds = std::chrono::duration<double>(now - since).count() * busy /
+                                   static_cast<double>(results.size());
+            assigned.erase(sent);
+            --p.in_flight;
+            deliver(rank, index, std::move(rows), seconds);
+          }
+          p.last_result = now;
         } catch (...) {
-          fail(std::current_exception());
+          abort_job(0, what(std::current_exception()));  // a unit record lost: in-flight counts are wrong
         }
       } else if (status.MPI_TAG == cancelled_tag) {
-        unsigned long long index = 0;
-        MPI_Recv(&index, 1, MPI_UNSIGNED_LONG_LONG, rank, cancelled_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
-        const auto sent = assigned.find(static_cast<std::size_t>(index));
-        if (sent == assigned.end() || sent->second.first != rank)
-          throw std::runtime_error(fmt::format("rank {} cancelled unit {}, which it was not assigned", rank, index));
-        assigned.erase(sent);
-        --p.in_flight;
+        int count = 0;
+        MPI_Get_count(&status, MPI_UNSIGNED_LONG_LONG, &count);
+        std::vector<unsigned long long> cut(static_cast<std::size_t>(std::max(0, count)));
+        MPI_Recv(cut.data(), count, MPI_UNSIGNED_LONG_LONG, rank, cancelled_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+        for (unsigned long long index : cut) {
+          const auto sent = assigned.find(static_cast<std::size_t>(index));
+          if (sent == assigned.end() || sent->second.first != rank)
+            throw std::runtime_error(fmt::format("rank {} cancelled unit {}, which it was not assigned", rank, index));
+          assigned.erase(sent);
+          --p.in_flight;
+        }
         worker_cancelled = true;  // not recorded; no unit is handed out any more
       } else {
         throw std::runtime_error(fmt::format("unexpected MPI message (tag {}) from rank {}", status.MPI_TAG, rank));
       }
       refill(rank);
+      handling_cpu_seconds_ += thread_cpu_seconds() - cpu_at_message;
     }
   } catch (const std::exception& e) {
     abort_job(0, e.what());  // the protocol itself broke: nobody can be stopped cleanly
   }
+  serving_cpu_seconds_ += thread_cpu_seconds() - cpu_at_start;
   for (auto& t : pool) t.join();
   workers_stopped_ = true;
   if (failure) std::rethrow_exception(failure);
@@ -405,10 +466,17 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           abandoned.swap(cut);
           error = failure;
         }
-        for (const auto& text : finished)
+        // Every unit finished since the last message goes in one RESULT, every unit cut short in one
+        // CANCELLED: rank 0 pays per message, and short units finish faster than it is polled.
+        if (!finished.empty()) {
+          std::string text;
+          for (const auto& record : finished) text += record;
           MPI_Send(text.data(), static_cast<int>(text.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD);
-        for (unsigned long long index : abandoned)
-          MPI_Send(&index, 1, MPI_UNSIGNED_LONG_LONG, 0, cancelled_tag, MPI_COMM_WORLD);
+        }
+        if (!abandoned.empty()) {
+          const std::vector<unsigned long long> list(abandoned.begin(), abandoned.end());
+          MPI_Send(list.data(), static_cast<int>(list.size()), MPI_UNSIGNED_LONG_LONG, 0, cancelled_tag, MPI_COMM_WORLD);
+        }
         held -= static_cast<int>(finished.size() + abandoned.size());
         if (error)
           abort_job(rank, what(error) +
@@ -421,16 +489,20 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
         if (flag) {
           backoff.reset();
           if (status.MPI_TAG == assign_tag) {
-            unsigned long long index = 0;
-            MPI_Recv(&index, 1, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
-            if (index >= units.size())
-              abort_job(rank, fmt::format("rank 0 assigned unit {}, which does not exist", index));
+            int count = 0;
+            MPI_Get_count(&status, MPI_UNSIGNED_LONG_LONG, &count);
+            std::vector<unsigned long long> batch(static_cast<std::size_t>(std::max(0, count)));
+            MPI_Recv(batch.data(), count, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            if (batch.empty()) abort_job(rank, "rank 0 assigned an empty batch");
+            for (unsigned long long index : batch)
+              if (index >= units.size())
+                abort_job(rank, fmt::format("rank 0 assigned unit {}, which does not exist", index));
             {
               std::lock_guard lock(mutex);
-              queue.push_back(static_cast<std::size_t>(index));
+              for (unsigned long long index : batch) queue.push_back(static_cast<std::size_t>(index));
             }
-            ++held;
-            work_ready.notify_one();
+            held += static_cast<int>(batch.size());
+            work_ready.notify_all();
           } else if (status.MPI_TAG == cancel_tag) {
             MPI_Recv(nullptr, 0, MPI_BYTE, 0, cancel_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
             cancel = true;  // the units held answer RESULT or CANCELLED; rank 0 then sends STOP
@@ -447,12 +519,12 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           continue;
         }
         if (!finished.empty() || !abandoned.empty()) backoff.reset();
-        // Wake for a finished unit at once. With every slot holding a unit only CANCEL can come
+        // Wake for a finished unit at once. Holding at least a unit per slot only CANCEL can come
         // (rank 0 writes to a worker only to fill a free slot, to stop one holding nothing, or to
         // cancel): look for it every 100 ms; otherwise a reply is due soon: poll for it.
         const auto done = [&] { return !outbox.empty() || !cut.empty() || failure != nullptr; };
         std::unique_lock lock(mutex);
-        if (held == slots)
+        if (held >= slots)
           result_ready.wait_for(lock, Micros(100000), done);
         else
           result_ready.wait_for(lock, backoff.next(Micros(1000)), done);

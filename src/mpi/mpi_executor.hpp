@@ -9,16 +9,20 @@
 // nothing but their own fatal errors. Results do not depend on P: a unit's random streams are
 // keyed by the unit, and its rows travel as the journal's text, which reads back to the same doubles.
 //
-// Dynamic distribution ("who finishes early takes more"). Units are handed out one at a time, in
-// the order of `todo` (canonical order), from one queue on rank 0. Rank 0 computes too: T local
-// threads take units from that queue and deliver them directly, while rank 0's main thread serves
+// Dynamic distribution ("who finishes early takes more"). Units are handed out in the order of
+// `todo` (canonical order), from one queue on rank 0. Rank 0 computes too: T local threads take
+// units from that queue one at a time and deliver them directly, while rank 0's main thread serves
 // the other ranks (MPI_THREAD_FUNNELED: only main threads call MPI). A worker rank runs T compute
-// threads and keeps at most T units at a time: one per thread, none queued ahead, so the tail of a
-// run is balanced to within one unit per thread. Each process builds a DrawContext once per
+// threads and gets one batch of consecutive units per free thread, by guided self-scheduling
+// (Polychronopoulos and Kuck 1987, mpi_executor.cpp): ceil(R / 2S) of the R units left, S the
+// threads of all ranks, so batches start large (few messages per unit) and shrink to single
+// units at the end, which keeps the tail balanced to within about one unit per thread. Each process builds a DrawContext once per
 // (scenario, draw) it meets, shares it between its threads and releases it when the units handed
 // out (in canonical order) have moved past its draw and its last unit here has finished. Why rank 0 computes: with a
 // dedicated coordinator, 2 ranks would give 1 worker (at most 50% efficiency from 1 to 2 ranks);
-// serving costs rank 0's main thread a few microseconds per unit.
+// serving costs rank 0's main thread about 7 us of CPU per unit (DEVELOPERS.md, "MPI hand-out
+// rate": about 140,000 units a second, enough for some 3,500 ranks of 25 ms units). A RESULT that
+// does not decode ends the job with MPI_Abort (how many units it held is unknown).
 //
 // Threads: --threads T applies to every rank; without it each rank takes its node's cores divided
 // by the ranks on that node. OpenMPI binds each rank to one core when P <= 2 (to a socket above),
@@ -27,17 +31,19 @@
 // Messages (MPI_COMM_WORLD; every message is between rank 0 and one worker rank):
 //   tag 1 READY   worker -> 0  one int: the worker's number of compute threads (its slots); sent
 //                              once, when the worker has loaded the study.
-//   tag 2 ASSIGN  0 -> worker  one unsigned long long: the index of a unit (into enumerate_units)
-//                              to compute; rank 0 keeps at most `slots` units in flight per worker.
-//   tag 3 RESULT  worker -> 0  chars: the unit's units.journal record (io/journal.hpp: index, CRC-32,
+//   tag 2 ASSIGN  0 -> worker  unsigned long longs: a batch, the indices of units (into
+//                              enumerate_units) to compute, in canonical order; rank 0 sends one
+//                              batch per free slot, i.e. while fewer units than `slots` are in flight.
+//   tag 3 RESULT  worker -> 0  chars: the units.journal records (io/journal.hpp: index, CRC-32,
 //                              rows as runs.csv lines with ",<fit_seconds>"; shortest round-trip
-//                              numbers, so the rows read back exactly); it frees one slot, which
-//                              rank 0 refills with an ASSIGN while work is left.
+//                              numbers, so the rows read back exactly) of every unit the worker
+//                              finished since its last message; rank 0 journals them one by one and
+//                              refills the freed slots with ASSIGNs while work is left.
 //   tag 4 STOP    0 -> worker  empty: no more work; sent once, when the queue is exhausted (or a
 //                              stop was requested, or a unit failed) and the worker has nothing in
 //                              flight, so no message is ever left unreceived.
-//   tag 5 CANCELLED worker -> 0  one unsigned long long: a unit cut short by a stop (stop.hpp); it
-//                              frees its slot and nothing is recorded. Rank 0 then stops the run as
+//   tag 5 CANCELLED worker -> 0  unsigned long longs: units cut short by a stop (stop.hpp), or
+//                              of a batch not yet started; nothing is recorded of them. Rank 0 then stops the run as
 //                              if it had been signalled itself (a rank that stops would cut short
 //                              every unit handed to it again).
 //   tag 6 CANCEL  0 -> worker  empty: a stop was requested on rank 0; the worker abandons the units
@@ -57,7 +63,7 @@
 // the main threads poll with MPI_Iprobe and sleeps, backing off from 50 us after a message to a
 // cap. Rank 0's cap is 1% of the mean unit time, within [1 ms, 10 ms] (each wake-up costs about
 // 50 us of a shared core in a virtual machine; each ms of cap delays a worker's next unit by half
-// a ms). A worker whose slots all hold a unit expects no message but CANCEL, so it sleeps until a
+// a ms). A worker holding at least one unit per slot expects no message but CANCEL, so it sleeps until a
 // unit finishes or 100 ms pass (10 wake-ups a second: a stop reaches its units within about 0.1 s);
 // with a free slot it polls for rank 0's reply, capped at 1 ms.
 #pragma once
@@ -110,11 +116,24 @@ class Coordinator {
   void release_workers();
   // Units computed (and delivered) by each rank so far: how the dynamic distribution balanced.
   const std::vector<std::size_t>& units_by_rank() const { return units_by_rank_; }
+  // ASSIGN messages sent so far (each a batch of units).
+  std::size_t batches() const { return batches_; }
+  // CPU seconds rank 0's main thread spent serving the workers (handing out, receiving, journaling
+  // their units, polling): units of ranks 1..P-1 divided by it is the rate rank 0 can hand out.
+  double serving_cpu_seconds() const { return serving_cpu_seconds_; }
+  // Of it, the CPU seconds spent on messages (receiving, journaling, replying): without the idle
+  // polls, which a busy rank 0 no longer makes. And the RESULT messages received.
+  double handling_cpu_seconds() const { return handling_cpu_seconds_; }
+  std::size_t result_messages() const { return result_messages_; }
 
  private:
   int size_;
   bool workers_stopped_ = false;
   std::vector<std::size_t> units_by_rank_;
+  std::size_t batches_ = 0;
+  double serving_cpu_seconds_ = 0.0;
+  double handling_cpu_seconds_ = 0.0;
+  std::size_t result_messages_ = 0;
 };
 
 // Ranks 1..P-1: announce `threads` slots to rank 0, compute the units it assigns on that many

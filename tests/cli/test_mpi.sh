@@ -109,6 +109,74 @@ check "--shard 1/2 under MPI: exit code 0 (got $code)" test "$code" -eq 0
 check "--shard 1/2 under MPI: units 1, 3, ..., 15 computed" \
   test "$(tail -n +2 "$dir/shard/units.journal" | cut -f1 | sort -n | tr '\n' ' ')" = "$(seq 1 2 15 | tr '\n' ' ')"
 
+# Batches (guided self-scheduling, src/mpi/mpi_executor.cpp): 1,200 near-empty units on 3 ranks x
+# 1 thread, so workers take many units per ASSIGN while the batches shrink to single units at the
+# end. Same runs.csv as one process, each unit recorded once, fewer batches than units handed out.
+cat >"$dir/many.yaml" <<'EOF2'
+name: many
+seed: 3
+environment: { states: 2, actions: 1, observations: 2, horizon: 1, draws: 4 }
+budgets: { logged: [0], pilot: [2] }
+replicates: 300
+fit: { restarts: 1, max_iterations: 1 }
+evaluation: { trajectories: 1 }
+targets: { model_kl: 0.05 }
+EOF2
+"$dobudget" plan "$dir/many.yaml" --quiet --threads 1 --out "$dir/many-single" >"$dir/many-single.out"
+code=0
+mpirun_n 3 plan "$dir/many.yaml" --threads 1 --out "$dir/many-mpi" >"$dir/many-mpi.out" 2>"$dir/many-mpi.err" || code=$?
+check "batches, mpirun -n 3: exit code 0 (got $code)" test "$code" -eq 0
+check "batches, mpirun -n 3: runs.csv byte-identical to one process" cmp "$dir/many-single/runs.csv" "$dir/many-mpi/runs.csv"
+check "batches, mpirun -n 3: each unit recorded once" \
+  test "$(tail -n +2 "$dir/many-mpi/units.journal" | cut -f1 | sort -n | uniq | wc -l)" -eq 1200 -a \
+  "$(tail -n +2 "$dir/many-mpi/units.journal" | wc -l)" -eq 1200
+handout=$(grep "^MPI hand-out: " "$dir/many-mpi.err" || true)
+echo "$handout"
+read -r remote batches <<<"$(sed -n 's/^MPI hand-out: \([0-9]*\) units to ranks 1\.\.2 in \([0-9]*\) batches.*/\1 \2/p' <<<"$handout")"
+check "batches, mpirun -n 3: workers took units in batches ($remote units in $batches batches)" \
+  test "${remote:-0}" -gt "${batches:-0}" -a "${batches:-0}" -ge 2
+
+# SIGTERM to rank 0 part-way, once a few units are journalled: rank 0 stops handing out units and
+# sends CANCEL, the workers give back the units of their batches (CANCELLED), the job exits 130 with
+# only whole units journalled, and a rerun computes the rest: runs.csv byte-identical to one
+# process. Units of about 50 ms (the tiny study with 4 restarts of 80 iterations, 40 replicates:
+# 80 units; first batches of 14), so that batches are in flight when it comes. (A SIGTERM to
+# mpirun itself reaches the ranks too, but OpenMPI then exits 1 whatever the ranks return.)
+sed 's/^replicates: 8$/replicates: 40/; s/^fit: .*/fit: { restarts: 4, max_iterations: 80 }/' "$study" >"$dir/long.yaml"
+"$dobudget" plan "$dir/long.yaml" --quiet --threads 1 --out "$dir/long-single" >"$dir/long-single.out"
+journalled() { if [[ -f $1 ]]; then echo $(($(wc -l <"$1") - 1)); else echo 0; fi; }
+"${launcher[@]}" -n 3 "$dobudget_mpi" plan "$dir/long.yaml" --quiet --threads 1 --out "$dir/long-mpi" \
+  >"$dir/long-cut.out" 2>&1 &
+job=$!
+for _ in $(seq 1200); do
+  (($(journalled "$dir/long-mpi/units.journal") >= 3)) && break
+  kill -0 "$job" 2>/dev/null || break
+  sleep 0.05
+done
+rank0=""
+for status in /proc/[0-9]*/status; do # mpirun's children; rank 0 by its environment (OpenMPI)
+  ppid=""
+  while read -r key value; do [[ $key == PPid: ]] && ppid=$value && break; done <"$status" 2>/dev/null || true
+  [[ $ppid == "$job" ]] || continue
+  pid=${status#/proc/}
+  pid=${pid%/status}
+  tr '\0' '\n' <"/proc/$pid/environ" 2>/dev/null | grep -qx OMPI_COMM_WORLD_RANK=0 && rank0=$pid
+done
+if [[ -n $rank0 ]]; then kill -TERM "$rank0"; else kill -TERM "$job" 2>/dev/null || true; fi
+code=0
+wait "$job" || code=$?
+cut_short=$(journalled "$dir/long-mpi/units.journal")
+echo "interrupted run (rank 0: pid ${rank0:-not found}): exit code $code, $cut_short of 80 units journalled"
+check "SIGTERM to rank 0 under MPI: exit code 130 (got $code)" test "$code" -eq 130
+check "SIGTERM to rank 0 under MPI: some units, not all, journalled ($cut_short)" test "$cut_short" -ge 3 -a "$cut_short" -lt 80
+check "SIGTERM to rank 0 under MPI: the journal ends with a whole record" \
+  test "$(tail -c 1 "$dir/long-mpi/units.journal" | od -An -c | tr -d ' ')" = '\n'
+code=0
+mpirun_n 3 plan "$dir/long.yaml" --quiet --threads 1 --out "$dir/long-mpi" >"$dir/long-resume.out" 2>&1 || code=$?
+check "SIGTERM to rank 0 under MPI: the rerun exits 0 (got $code)" test "$code" -eq 0
+check "SIGTERM to rank 0 under MPI: after the rerun, runs.csv byte-identical to one process" \
+  cmp "$dir/long-single/runs.csv" "$dir/long-mpi/runs.csv"
+
 if ((failures > 0)); then
   echo "$failures check(s) failed; outputs:"
   for f in "$dir"/*.out; do echo "== $f"; cat "$f"; done
