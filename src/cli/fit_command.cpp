@@ -8,7 +8,6 @@
 
 #include "cli/commands.hpp"
 #include "cli/option_values.hpp"
-#include "core/fitting/evidence.hpp"
 #include "core/fitting/model_selection.hpp"
 #include "io/episode_file.hpp"
 #include "io/file_name.hpp"
@@ -49,32 +48,14 @@ int fit_command(const FitArgs& args) {
   const io::EpisodeRecords records = io::read_episodes(args.episodes, with_codebook ? &codebook : nullptr);
   if (records.logged.count + records.pilot.count == 0) throw BadInput(fmt::format("{}: holds no episodes", args.episodes));
 
-  Pomdp shape;
-  shape.actions = static_cast<int>(records.codebook.actions.size());
-  shape.observations = static_cast<int>(records.codebook.observations.size());
-  shape.horizon = std::max({1, records.logged.horizon, records.pilot.horizon});
-  shape.rewards = Vector::Zero(shape.observations);
-  if (shape.actions < 1) throw BadInput(fmt::format("{}: no episode takes an action, so there is nothing to fit", args.episodes));
-
   const auto t0 = std::chrono::steady_clock::now();
-  io::RecordsFit f;
-  f.selection = select_latent_states(records.logged, records.pilot, shape, fs, sel, seed);
-  const FitResult& best = f.selection.best().fit;
-  f.evidence = transition_evidence(expected_counts_by_regime(best.model, best.decision, records.logged, records.pilot));
+  const io::RecordsFit f = io::fit_records(records, fs, sel, seed, args.episodes, automatic);
   const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-  f.codebook = records.codebook;
-  f.logged_episodes = records.logged.count;
-  f.pilot_episodes = records.pilot.count;
-  f.horizon = shape.horizon;
-  f.shortest = shape.horizon;
-  for (const Dataset* d : {&records.logged, &records.pilot})
-    for (int i = 0; i < d->count; ++i) f.shortest = std::min(f.shortest, d->length(i));
-  f.source = std::filesystem::path(args.episodes).filename().string();
-  f.chosen_by = automatic ? "auto" : "given";
+  const FitResult& best = f.selection.best().fit;
   io::write_fit_directory(out, f);
 
   std::printf("%d logged and %d pilot episodes, %d observation and %d action codes\n", f.logged_episodes,
-              f.pilot_episodes, shape.observations, shape.actions);
+              f.pilot_episodes, static_cast<int>(f.codebook.observations.size()), static_cast<int>(f.codebook.actions.size()));
   std::printf("%s", io::selection_csv(f.selection).c_str());
   std::printf("chosen: %d latent states (%s); restarts %s, %s; %.1f s\n", f.selection.best().latent_states,
               automatic ? "best held-out log-likelihood, one-standard-error rule" : "given",

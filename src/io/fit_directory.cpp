@@ -6,12 +6,38 @@
 #include <vector>
 
 #include "io/atomic_file.hpp"
+#include "io/input_error.hpp"
 #include "io/csv.hpp"
 #include "io/csv_records.hpp"
 #include "io/model_file.hpp"
 #include "io/text_escape.hpp"
 
 namespace dobudget::io {
+
+RecordsFit fit_records(const EpisodeRecords& records, const FitSettings& fit, const SelectionSettings& selection,
+                       std::uint64_t seed, const std::string& source, bool automatic) {
+  Pomdp shape;
+  shape.actions = static_cast<int>(records.codebook.actions.size());
+  shape.observations = static_cast<int>(records.codebook.observations.size());
+  shape.horizon = std::max({1, records.logged.horizon, records.pilot.horizon});
+  shape.rewards = Vector::Zero(shape.observations);
+  if (shape.actions < 1) throw InputError(source, 0, "", "no episode takes an action, so there is nothing to fit");
+
+  RecordsFit f;
+  f.selection = select_latent_states(records.logged, records.pilot, shape, fit, selection, seed);
+  const FitResult& best = f.selection.best().fit;
+  f.evidence = transition_evidence(expected_counts_by_regime(best.model, best.decision, records.logged, records.pilot));
+  f.codebook = records.codebook;
+  f.logged_episodes = records.logged.count;
+  f.pilot_episodes = records.pilot.count;
+  f.horizon = shape.horizon;
+  f.shortest = shape.horizon;
+  for (const Dataset* d : {&records.logged, &records.pilot})
+    for (int i = 0; i < d->count; ++i) f.shortest = std::min(f.shortest, d->length(i));
+  f.source = std::filesystem::path(source).filename().string();
+  f.chosen_by = automatic ? "auto" : "given";
+  return f;
+}
 
 Environment fitted_environment(const RecordsFit& f) {
   const FitResult& r = f.selection.best().fit;

@@ -39,6 +39,13 @@ struct RecordsFit {
   std::string chosen_by;          // "auto" or "given"
 };
 
+// Fits the regime-aware latent model to the records at the sizes `selection` lists (model_selection.hpp)
+// and gathers what `dobudget fit` writes: the chosen size, its evidence, the records' sizes.
+// `source` names the episodes file (user text); `automatic`: the size was chosen, not given.
+// Throws InputError naming `source` when no episode takes an action (nothing to fit).
+RecordsFit fit_records(const EpisodeRecords& records, const FitSettings& fit, const SelectionSettings& selection,
+                       std::uint64_t seed, const std::string& source, bool automatic);
+
 // The chosen fit as an environment: its model with the codebook's rewards and the decision rule as
 // the logging policy.
 Environment fitted_environment(const RecordsFit& fit);
