@@ -16,26 +16,43 @@ void ExpectedCounts::reset(int Z, int A, int O) {
 namespace {
 
 constexpr int W = ForwardBackward::kLanes;
+constexpr int kPack = 8;  // slots of one selection table (ForwardBackward::load)
 
 // One batch of W episodes, as the kernel sees it (pointers into the ForwardBackward workspace).
 struct Batch {
   int Z, A, O, H;  // H: the longest episode of the batch
-  bool decision;   // gamma by action is wanted (logged view of a regime-aware fit)
-  const double *q0, *qT, *qE, *qA;
-  const double *ob, *ac;  // [t][l]: o_t and a_t of each lane, -1 past its end (and on empty lanes)
-  double *alpha, *e, *scale, *inv;
-  double *fmask, *cmask, *omask, *idle;
+  bool decision;   // e_t multiplies the decision rule, and gamma by action is wanted
+  const double *q0, *qT, *qE, *qA;  // qT [a][z][z'], qE [z][o], qA [z][a]
+  const double *pT, *pE, *pA;       // the same as selection tables: [z][z'][a], [z][o], [z][a], kPack slots each
+  const long long *ob, *ac;         // [t][l]: o_t and a_t of each lane, -1 past its end (and on empty lanes)
+  double *alpha, *e, *g, *ul, *scale, *inv;  // [t][z][l] (ul: [t][z'][l]), scale and inv [t][l]
   const double* live;
-  double* work;  // (2A + 3) Z W doubles
+  double* beta;  // Z W doubles
   double *X, *gE, *gA, *g0;
-  double* ua;  // H A Z W doubles
 };
 
 // W lanes as one GCC vector (element-wise IEEE operations; the compiler splits it into as many
 // registers as the target has: 4 SSE2, 2 AVX2 or 1 AVX-512). Unaligned loads and stores.
 typedef double V __attribute__((vector_size(W * sizeof(double)), aligned(sizeof(double))));
+typedef long long Vi __attribute__((vector_size(W * sizeof(long long)), aligned(sizeof(long long))));
 [[gnu::always_inline]] inline V& at(double* p) { return *reinterpret_cast<V*>(p); }
 [[gnu::always_inline]] inline const V& at(const double* p) { return *reinterpret_cast<const V*>(p); }
+[[gnu::always_inline]] inline const Vi& ati(const long long* p) { return *reinterpret_cast<const Vi*>(p); }
+
+// Lane l gets table[idx_l * stride], i.e. the parameter of the lane's own action or observation:
+// a selection, exact whatever its implementation. Perm: one variable permute of the kPack-slot
+// table `pack` (AVX-512 vpermpd; idx in 0..7, so -1 gives slot 7); otherwise a chain of blends
+// of broadcast entries (idx outside 0..n-1 gives entry 0).
+template <bool Perm>
+[[gnu::always_inline]] inline void pick(V& v, const double* pack, const double* table, std::ptrdiff_t stride, int n,
+                                        Vi idx) {
+  if constexpr (Perm) {
+    v = __builtin_shuffle(at(pack), idx);
+  } else {
+    v = V{} + table[0];
+    for (int k = 1; k < n; ++k) v = idx == k ? V{} + table[k * stride] : v;
+  }
+}
 
 // c_t = sum_z alpha_t(z), summed from +0 in z order; alpha_t *= 1 / c_t.
 template <int ZC>
@@ -49,81 +66,69 @@ template <int ZC>
   at(b.inv + t * W) = inv;
 }
 
-// Masks and e_t(z) = qE(z, o_t) w_t(z) of the batch. An observation or action mask is 1 where the
-// lane has that o_t or a_t, else 0; past a lane's end (and on empty lanes) every mask is 0, the
-// forward mask selects action 0 and e = 1, so the numbers there stay finite while every count they
-// could reach is multiplied by 0. Selecting by 0/1 masks summed from +0 is exact:
-// e = [sum_o om(o) qE(z, o) + (1 past the end)] [sum_a cm(a) qA(z, a) + (1 without an action)].
-template <int ZC>
+// e_t(z) = qE(z, o_t) [x qA(z, a_t) on steps t < L of a lane when the decision rule is loaded];
+// 1 past a lane's end, so the numbers there stay finite (a step past the end selects action 0 in
+// the forward pass, and every count it could reach is left out by the selections below).
+template <int ZC, bool Perm>
 [[gnu::always_inline]] inline void prepare(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
-  const int A = b.A, O = b.O;
+  const V one = V{} + 1.0;
   for (int t = 0; t <= b.H; ++t) {
-    const V ob = at(b.ob + t * W), one = V{} + 1.0, zero = {};
-    double* om = b.omask + static_cast<std::ptrdiff_t>(t) * O * W;
-    for (int o = 0; o < O; ++o) at(om + o * W) = ob == static_cast<double>(o) ? one : zero;
-    const V gone = ob < 0.0 ? one : zero;
+    const Vi oi = ati(b.ob + t * W);
+    const Vi gone = oi < 0;
     double* e = b.e + static_cast<std::ptrdiff_t>(t) * Z * W;
     for (int z = 0; z < Z; ++z) {
-      V v = {};
-      for (int o = 0; o < O; ++o) v += at(om + o * W) * b.qE[z * O + o];
-      at(e + z * W) = v + gone;
+      V q;
+      pick<Perm>(q, b.pE + z * kPack, b.qE + z * b.O, 1, b.O, oi);
+      at(e + z * W) = gone ? one : q;
     }
-    if (t == b.H) break;
-    const V ac = at(b.ac + t * W);
-    double* cm = b.cmask + static_cast<std::ptrdiff_t>(t) * A * W;
-    double* fm = b.fmask + static_cast<std::ptrdiff_t>(t) * A * W;
-    const V idle = ac < 0.0 ? one : zero;
-    at(b.idle + t * W) = idle;
-    for (int a = 0; a < A; ++a) {
-      at(cm + a * W) = ac == static_cast<double>(a) ? one : zero;
-      at(fm + a * W) = a == 0 ? at(cm) + idle : at(cm + a * W);
-    }
-    if (b.decision)
+    if (b.decision && t < b.H) {
+      const Vi ai = ati(b.ac + t * W);
+      const Vi idle = ai < 0;
       for (int z = 0; z < Z; ++z) {
-        V v = {};
-        for (int a = 0; a < A; ++a) v += at(cm + a * W) * b.qA[z * A + a];
-        at(e + z * W) *= v + idle;
+        V q;
+        pick<Perm>(q, b.pA + z * kPack, b.qA + z * b.A, 1, b.A, ai);
+        at(e + z * W) *= idle ? one : q;
       }
+    }
   }
 }
 
-// Forward pass: alpha_t (normalised) and c_t, 1/c_t for t = 0..H of every lane.
+// Forward pass: alpha_t (normalised) and c_t, 1/c_t for t = 0..H of every lane:
+//   alpha_{t+1}(z') = [sum_z alpha_t(z) qT[a_t](z, z')] e_{t+1}(z'), summed over z ascending from +0.
 // ZC > 0 fixes the latent size at compile time (all Z outputs of a step accumulate at once);
-// ZC = 0 is the general case (one output at a time). Both sum each output over (a, z) ascending
-// from +0, so they give the same bits.
-template <int ZC>
+// ZC = 0 is the general case (one output at a time); both give the same bits.
+template <int ZC, bool Perm>
 [[gnu::always_inline]] inline void forward(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
-  const int A = b.A;
-  const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W;
+  const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W, ZZ = static_cast<std::ptrdiff_t>(Z) * Z;
   for (int z = 0; z < Z; ++z) at(b.alpha + z * W) = b.q0[z] * at(b.e + z * W);
   normalise<ZC>(b, b.alpha, 0);
-  double* pa = b.work;  // [a][z][l]: alpha_t(z) masked to the lane's action a_t
   for (int t = 0; t < b.H; ++t) {
     const double* prev = b.alpha + t * ZW;
     double* cur = b.alpha + (t + 1) * ZW;
-    const double* fm = b.fmask + static_cast<std::ptrdiff_t>(t) * A * W;
     const double* e = b.e + (t + 1) * ZW;
-    for (int a = 0; a < A; ++a) {
-      const V m = at(fm + a * W);
-      for (int z = 0; z < Z; ++z) at(pa + (a * Z + z) * W) = at(prev + z * W) * m;
-    }
-    // cur(z') = [sum_a sum_z pa(a, z) qT[a](z, z')] e_{t+1}(z')
+    const Vi ai = ati(b.ac + t * W);
+    const Vi fi = ai < 0 ? Vi{} : ai;  // past the end: action 0
     if constexpr (ZC > 0) {
       V s[ZC] = {};
-      for (int a = 0; a < A; ++a)
-        for (int z = 0; z < ZC; ++z) {
-          const V p = at(pa + (a * ZC + z) * W);
-          const double* T = b.qT + (a * ZC + z) * ZC;
-          for (int y = 0; y < ZC; ++y) s[y] += p * T[y];
+      for (int z = 0; z < ZC; ++z) {
+        const V p = at(prev + z * W);
+        for (int y = 0; y < ZC; ++y) {
+          V q;
+          pick<Perm>(q, b.pT + (z * ZC + y) * kPack, b.qT + z * ZC + y, ZZ, b.A, fi);
+          s[y] += p * q;
         }
+      }
       for (int y = 0; y < ZC; ++y) at(cur + y * W) = s[y] * at(e + y * W);
     } else {
       for (int y = 0; y < Z; ++y) {
         V s = {};
-        for (int a = 0; a < A; ++a)
-          for (int z = 0; z < Z; ++z) s += at(pa + (a * Z + z) * W) * b.qT[(a * Z + z) * Z + y];
+        for (int z = 0; z < Z; ++z) {
+          V q;
+          pick<Perm>(q, b.pT + (z * Z + y) * kPack, b.qT + z * Z + y, ZZ, b.A, fi);
+          s += at(prev + z * W) * q;
+        }
         at(cur + y * W) = s * at(e + y * W);
       }
     }
@@ -131,127 +136,185 @@ template <int ZC>
   }
 }
 
-// gamma_t(z) = alpha_t(z) beta_t(z), added by observation (om), by action (am, when wanted) and,
-// at t = 0, to the initial counts.
-template <int ZC>
-[[gnu::always_inline]] inline void add_gamma(const Batch& b, const double* g, int t) {
-  const int Z = ZC > 0 ? ZC : b.Z;
-  const double* om = b.omask + static_cast<std::ptrdiff_t>(t) * b.O * W;
-  for (int o = 0; o < b.O; ++o) {
-    const V m = at(om + o * W);
-    for (int z = 0; z < Z; ++z) at(b.gE + (o * Z + z) * W) += at(g + z * W) * m;
-  }
-  if (b.decision && t < b.H) {
-    const double* am = b.cmask + static_cast<std::ptrdiff_t>(t) * b.A * W;
-    for (int a = 0; a < b.A; ++a) {
-      const V m = at(am + a * W);
-      for (int z = 0; z < Z; ++z) at(b.gA + (a * Z + z) * W) += at(g + z * W) * m;
-    }
-  }
-  if (t == 0)
-    for (int z = 0; z < Z; ++z) at(b.g0 + z * W) += at(g + z * W) * at(b.live);
-}
-
-// Backward pass and expected counts: beta_t = qT[a_t] u_{t+1} (1 past the lane's end) and
-// X[a](z, z') += alpha_t(z) u_{t+1}(z') on the lane's steps with a_t = a; the counts of transitions
-// are qT[a](z, z') X[a](z, z'), multiplied once per call (ForwardBackward::accumulate).
-template <int ZC>
+// Backward pass: beta_H = 1 and, for t = H-1..0,
+//   u_{t+1}(z') = e_{t+1}(z') beta_{t+1}(z') / c_{t+1}   (kept as ul, 0 past the lane's end)
+//   beta_t(z) = sum_z' qT[a_t](z, z') ul(z')            (z' ascending from +0; + 1 past the end)
+//   gamma_t(z) = alpha_t(z) beta_t(z)                    (kept as g; g_H = alpha_H)
+template <int ZC, bool Perm>
 [[gnu::always_inline]] inline void backward(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
-  const int A = b.A;
-  const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W;
-  double* beta = b.work;
-  double* u = beta + ZW;
-  double* g = u + ZW;
-  // ua: [t][a][z'][l], u_{t+1} masked to the lane's action a_t (0 past its end), kept for the counts
-  double* const ua_all = b.ua;
-  for (int z = 0; z < Z; ++z) at(beta + z * W) = V{} + 1.0;
-  add_gamma<ZC>(b, b.alpha + b.H * ZW, b.H);  // gamma_H = alpha_H
+  const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W, ZZ = static_cast<std::ptrdiff_t>(Z) * Z;
+  const V one = V{} + 1.0, zero = {};
+  double* beta = b.beta;
+  for (int z = 0; z < Z; ++z) at(beta + z * W) = one;
+  for (int z = 0; z < Z; ++z) at(b.g + b.H * ZW + z * W) = at(b.alpha + b.H * ZW + z * W);
   for (int t = b.H - 1; t >= 0; --t) {
     const double* e = b.e + (t + 1) * ZW;
     const V inv = at(b.inv + (t + 1) * W);
-    const double* cm = b.cmask + static_cast<std::ptrdiff_t>(t) * A * W;
-    const V idle = at(b.idle + t * W);
-    const double* al = b.alpha + t * ZW;
-    double* ua = ua_all + t * A * ZW;
-    for (int y = 0; y < Z; ++y) at(u + y * W) = at(e + y * W) * at(beta + y * W) * inv;
-    for (int a = 0; a < A; ++a) {
-      const V m = at(cm + a * W);
-      for (int y = 0; y < Z; ++y) at(ua + (a * Z + y) * W) = at(u + y * W) * m;
-    }
-    // beta_t(z) = sum_a sum_z' qT[a](z, z') ua(a, z') (+ 1 on lanes past their end, where ua = 0)
+    const Vi ai = ati(b.ac + t * W);
+    const Vi idle = ai < 0;
+    const Vi fi = idle ? Vi{} : ai;
+    double* ul = b.ul + t * ZW;
+    for (int y = 0; y < Z; ++y) at(ul + y * W) = idle ? zero : at(e + y * W) * at(beta + y * W) * inv;
+    const V add = idle ? one : zero;
     if constexpr (ZC > 0) {
       V s[ZC] = {};
-      for (int a = 0; a < A; ++a)
-        for (int y = 0; y < ZC; ++y) {
-          const V v = at(ua + (a * ZC + y) * W);
-          for (int z = 0; z < ZC; ++z) s[z] += b.qT[(a * ZC + z) * ZC + y] * v;
+      for (int y = 0; y < ZC; ++y) {
+        const V v = at(ul + y * W);
+        for (int z = 0; z < ZC; ++z) {
+          V q;
+          pick<Perm>(q, b.pT + (z * ZC + y) * kPack, b.qT + z * ZC + y, ZZ, b.A, fi);
+          s[z] += q * v;
         }
-      for (int z = 0; z < ZC; ++z) at(beta + z * W) = s[z] + idle;
+      }
+      for (int z = 0; z < ZC; ++z) at(beta + z * W) = s[z] + add;
     } else {
       for (int z = 0; z < Z; ++z) {
         V s = {};
-        for (int a = 0; a < A; ++a)
-          for (int y = 0; y < Z; ++y) s += b.qT[(a * Z + z) * Z + y] * at(ua + (a * Z + y) * W);
-        at(beta + z * W) = s + idle;
+        for (int y = 0; y < Z; ++y) {
+          V q;
+          pick<Perm>(q, b.pT + (z * Z + y) * kPack, b.qT + z * Z + y, ZZ, b.A, fi);
+          s += q * at(ul + y * W);
+        }
+        at(beta + z * W) = s + add;
       }
     }
+    const double* al = b.alpha + t * ZW;
+    double* g = b.g + t * ZW;
     for (int z = 0; z < Z; ++z) at(g + z * W) = at(al + z * W) * at(beta + z * W);
-    add_gamma<ZC>(b, g, t);
   }
-  // X[a](z, z') += alpha_t(z) ua_t(a, z'), t descending (the accumulators stay in registers over t).
-  for (int a = 0; a < A; ++a)
-    for (int z = 0; z < Z; ++z) {
-      double* x = b.X + (static_cast<std::ptrdiff_t>(a * Z + z) * Z) * W;
+}
+
+// X[a](z, z') += alpha_t(z) ul_t(z') on the lane's steps with a_t = a, t descending, for the AC
+// actions a0..a0+AC-1 at once (one product, AC selections); the counts of transitions are
+// qT[a](z, z') X[a](z, z'), multiplied once per call (ForwardBackward::accumulate).
+template <int ZC, int AC>
+[[gnu::always_inline]] inline void add_transitions(const Batch& b, int a0) {
+  const int Z = ZC > 0 ? ZC : b.Z;
+  const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W;
+  for (int z = 0; z < Z; ++z) {
+    if constexpr (ZC > 0) {
+      V acc[AC][ZC];
+      for (int k = 0; k < AC; ++k)
+        for (int y = 0; y < ZC; ++y) acc[k][y] = at(b.X + (((a0 + k) * ZC + z) * ZC + y) * W);
+      for (int t = b.H - 1; t >= 0; --t) {
+        const Vi ai = ati(b.ac + t * W);
+        const V alz = at(b.alpha + t * ZW + z * W);
+        const double* ul = b.ul + t * ZW;
+        for (int y = 0; y < ZC; ++y) {
+          const V p = alz * at(ul + y * W);
+          for (int k = 0; k < AC; ++k) acc[k][y] = ai == a0 + k ? acc[k][y] + p : acc[k][y];
+        }
+      }
+      for (int k = 0; k < AC; ++k)
+        for (int y = 0; y < ZC; ++y) at(b.X + (((a0 + k) * ZC + z) * ZC + y) * W) = acc[k][y];
+    } else {
+      for (int y = 0; y < Z; ++y) {
+        double* x = b.X + ((static_cast<std::ptrdiff_t>(a0) * Z + z) * Z + y) * W;
+        V acc = at(x);
+        for (int t = b.H - 1; t >= 0; --t)
+          acc = ati(b.ac + t * W) == a0 ? acc + at(b.alpha + t * ZW + z * W) * at(b.ul + t * ZW + y * W) : acc;
+        at(x) = acc;
+      }
+    }
+  }
+}
+
+// gamma_t added by observation (t = H..0), by action (t = H-1..0, when wanted) and, at t = 0, to
+// the initial counts; each sum over t descending, the accumulators in registers.
+template <int ZC>
+[[gnu::always_inline]] inline void add_gamma(const Batch& b) {
+  const int Z = ZC > 0 ? ZC : b.Z;
+  const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W;
+  auto by = [&](double* sums, const long long* index, int n, int last) {
+    for (int k = 0; k < n; ++k) {
+      double* s = sums + static_cast<std::ptrdiff_t>(k) * ZW;
       if constexpr (ZC > 0) {
         V acc[ZC];
-        for (int y = 0; y < ZC; ++y) acc[y] = at(x + y * W);
-        for (int t = b.H - 1; t >= 0; --t) {
-          const V alz = at(b.alpha + t * ZW + z * W);
-          const double* ua = ua_all + (t * A + a) * ZW;
-          for (int y = 0; y < ZC; ++y) acc[y] += alz * at(ua + y * W);
+        for (int z = 0; z < ZC; ++z) acc[z] = at(s + z * W);
+        for (int t = last; t >= 0; --t) {
+          const Vi hit = ati(index + t * W) == k;
+          const double* g = b.g + t * ZW;
+          for (int z = 0; z < ZC; ++z) acc[z] = hit ? acc[z] + at(g + z * W) : acc[z];
         }
-        for (int y = 0; y < ZC; ++y) at(x + y * W) = acc[y];
+        for (int z = 0; z < ZC; ++z) at(s + z * W) = acc[z];
       } else {
-        for (int y = 0; y < Z; ++y) {
-          V acc = at(x + y * W);
-          for (int t = b.H - 1; t >= 0; --t) acc += at(b.alpha + t * ZW + z * W) * at(ua_all + (t * A + a) * ZW + y * W);
-          at(x + y * W) = acc;
+        for (int z = 0; z < Z; ++z) {
+          V acc = at(s + z * W);
+          for (int t = last; t >= 0; --t) acc = ati(index + t * W) == k ? acc + at(b.g + t * ZW + z * W) : acc;
+          at(s + z * W) = acc;
         }
       }
     }
+  };
+  by(b.gE, b.ob, b.O, b.H);
+  if (b.decision) by(b.gA, b.ac, b.A, b.H - 1);
+  for (int z = 0; z < Z; ++z) at(b.g0 + z * W) += at(b.g + z * W) * at(b.live);
 }
 
 template <int ZC>
-[[gnu::always_inline]] inline void run_batch(const Batch& b, bool counts) {
-  prepare<ZC>(b);
-  forward<ZC>(b);
-  if (counts) backward<ZC>(b);
+[[gnu::always_inline]] inline void count_transitions(const Batch& b) {
+  // As many actions at once as keep about 24 accumulators in registers.
+  constexpr int most = ZC == 0 ? 1 : ZC >= 8 ? 3 : ZC >= 5 ? 4 : ZC >= 3 ? 6 : 8;
+  int a0 = 0;
+  while (a0 < b.A) {
+    const int n = std::min(most, b.A - a0);
+    if constexpr (ZC > 0) {
+      switch (n) {
+        case 1: add_transitions<ZC, 1>(b, a0); break;
+        case 2: add_transitions<ZC, 2>(b, a0); break;
+        case 3: add_transitions<ZC, 3>(b, a0); break;
+        case 4: add_transitions<ZC, most >= 4 ? 4 : 1>(b, a0); break;
+        case 5: add_transitions<ZC, most >= 5 ? 5 : 1>(b, a0); break;
+        case 6: add_transitions<ZC, most >= 6 ? 6 : 1>(b, a0); break;
+        case 7: add_transitions<ZC, most >= 7 ? 7 : 1>(b, a0); break;
+        default: add_transitions<ZC, most >= 8 ? 8 : 1>(b, a0); break;
+      }
+    } else {
+      add_transitions<0, 1>(b, a0);
+    }
+    a0 += n;
+  }
 }
 
+template <int ZC, bool Perm>
+[[gnu::always_inline]] inline void run_batch(const Batch& b, bool counts) {
+  prepare<ZC, Perm>(b);
+  forward<ZC, Perm>(b);
+  if (!counts) return;
+  backward<ZC, Perm>(b);
+  count_transitions<ZC>(b);
+  add_gamma<ZC>(b);
+}
+
+template <bool Perm>
 [[gnu::always_inline]] inline void dispatch(const Batch& b, bool counts) {
   switch (b.Z) {
-    case 1: run_batch<1>(b, counts); break;
-    case 2: run_batch<2>(b, counts); break;
-    case 3: run_batch<3>(b, counts); break;
-    case 4: run_batch<4>(b, counts); break;
-    case 5: run_batch<5>(b, counts); break;
-    case 6: run_batch<6>(b, counts); break;
-    case 8: run_batch<8>(b, counts); break;
-    default: run_batch<0>(b, counts); break;
+    case 1: run_batch<1, Perm>(b, counts); break;
+    case 2: run_batch<2, Perm>(b, counts); break;
+    case 3: run_batch<3, Perm>(b, counts); break;
+    case 4: run_batch<4, Perm>(b, counts); break;
+    case 5: run_batch<5, Perm>(b, counts); break;
+    case 6: run_batch<6, Perm>(b, counts); break;
+    case 8: run_batch<8, Perm>(b, counts); break;
+    default: run_batch<0, Perm>(b, counts); break;
   }
 }
 
 // The same source compiled three times: for the x86-64 baseline (SSE2), for AVX2 and for
 // AVX-512. No FMA is enabled and -ffp-contract=off applies to all three, and every lane's
-// arithmetic is written out element by element, so the builds differ only in vector width.
-void kernel_baseline(const Batch& b, bool counts) { dispatch(b, counts); }
+// arithmetic is written out element by element, so the builds differ only in vector width and in
+// how a selection is made (AVX-512 permutes a table when actions and observations fit in kPack).
+void kernel_baseline(const Batch& b, bool counts) { dispatch<false>(b, counts); }
 #if defined(__x86_64__) && defined(__GNUC__)
 #define DOBUDGET_KERNEL_X86 1
-__attribute__((target("avx2"))) void kernel_avx2(const Batch& b, bool counts) { dispatch(b, counts); }
+__attribute__((target("avx2"))) void kernel_avx2(const Batch& b, bool counts) { dispatch<false>(b, counts); }
 __attribute__((target("avx512f,avx512vl,avx512dq,prefer-vector-width=512"))) void kernel_avx512(const Batch& b,
                                                                                                  bool counts) {
-  dispatch(b, counts);
+  if (b.A <= kPack && b.O <= kPack)
+    dispatch<true>(b, counts);
+  else
+    dispatch<false>(b, counts);
 }
 #endif
 
@@ -301,19 +364,15 @@ const char* kernel_path_name(KernelPath p) {
 ForwardBackward::ForwardBackward(int Z, int A, int O, int H)
     : Z_(Z), A_(A), O_(O), H_(H), path_(best_kernel_path()),
       q0_(Z), qT_(static_cast<std::size_t>(A) * Z * Z), qE_(static_cast<std::size_t>(Z) * O),
-      qA_(static_cast<std::size_t>(Z) * A),
+      qA_(static_cast<std::size_t>(Z) * A), pT_(static_cast<std::size_t>(Z) * Z * kPack),
+      pE_(static_cast<std::size_t>(Z) * kPack), pA_(static_cast<std::size_t>(Z) * kPack),
       alpha_(static_cast<std::size_t>(H + 1) * Z * W), e_(static_cast<std::size_t>(H + 1) * Z * W),
+      g_(static_cast<std::size_t>(H + 1) * Z * W), ul_(static_cast<std::size_t>(std::max(H, 1)) * Z * W),
       scale_(static_cast<std::size_t>(H + 1) * W), inv_(static_cast<std::size_t>(H + 1) * W),
-      fmask_(static_cast<std::size_t>(std::max(H, 1)) * A * W), cmask_(static_cast<std::size_t>(std::max(H, 1)) * A * W),
-      omask_(static_cast<std::size_t>(H + 1) * O * W), live_(W),
-      work_(static_cast<std::size_t>(2 * A + 3) * Z * W), len_(W),
+      live_(W), beta_(static_cast<std::size_t>(Z) * W), len_(W),
+      ob_(static_cast<std::size_t>(H + 1) * W), ac_(static_cast<std::size_t>(std::max(H, 1)) * W),
       X_(static_cast<std::size_t>(A) * Z * Z * W), gE_(static_cast<std::size_t>(O) * Z * W),
-      gA_(static_cast<std::size_t>(A) * Z * W), g0_(static_cast<std::size_t>(Z) * W), ll_(W) {
-  idle_.resize(static_cast<std::size_t>(std::max(H, 1)) * W);
-  ob_.resize(static_cast<std::size_t>(H + 1) * W);
-  ac_.resize(static_cast<std::size_t>(std::max(H, 1)) * W);
-  ua_.resize(static_cast<std::size_t>(std::max(H, 1)) * A * Z * W);
-}
+      gA_(static_cast<std::size_t>(A) * Z * W), g0_(static_cast<std::size_t>(Z) * W) {}
 
 void ForwardBackward::set_kernel_path(KernelPath p) { path_ = p == KernelPath::best ? best_kernel_path() : p; }
 
@@ -330,15 +389,30 @@ void ForwardBackward::load(const Pomdp& m, const Matrix* decision) {
     for (int z = 0; z < Z_; ++z)
       for (int y = 0; y < Z_; ++y) qT_[(static_cast<std::size_t>(a) * Z_ + z) * Z_ + y] = T(z, y);
   }
+  // Selection tables (kPack slots, the unused ones 0): pT [z][z'][a], pE [z][o], pA [z][a].
+  std::fill(pT_.begin(), pT_.end(), 0.0);
+  std::fill(pE_.begin(), pE_.end(), 0.0);
+  std::fill(pA_.begin(), pA_.end(), 0.0);
+  if (A_ <= kPack && O_ <= kPack) {
+    for (int a = 0; a < A_; ++a)
+      for (int z = 0; z < Z_; ++z)
+        for (int y = 0; y < Z_; ++y)
+          pT_[(static_cast<std::size_t>(z) * Z_ + y) * kPack + a] = qT_[(static_cast<std::size_t>(a) * Z_ + z) * Z_ + y];
+    for (int z = 0; z < Z_; ++z) {
+      for (int o = 0; o < O_; ++o) pE_[static_cast<std::size_t>(z) * kPack + o] = qE_[z * O_ + o];
+      if (has_decision_)
+        for (int a = 0; a < A_; ++a) pA_[static_cast<std::size_t>(z) * kPack + a] = qA_[z * A_ + a];
+    }
+  }
 }
 
 double ForwardBackward::run(const DataView& view, bool counts) {
   const Dataset& d = *view.data;
   const bool w = view.regime == Regime::logged && has_decision_;
   const Kernel kernel = kernel_for(path_);
-  Batch b{Z_, A_, O_, 0, w, q0_.data(), qT_.data(), qE_.data(), qA_.data(), ob_.data(), ac_.data(),
-          alpha_.data(), e_.data(), scale_.data(), inv_.data(), fmask_.data(), cmask_.data(), omask_.data(),
-          idle_.data(), live_.data(), work_.data(), X_.data(), gE_.data(), gA_.data(), g0_.data(), ua_.data()};
+  Batch b{Z_, A_, O_, 0, w, q0_.data(), qT_.data(), qE_.data(), qA_.data(), pT_.data(), pE_.data(), pA_.data(),
+          ob_.data(), ac_.data(), alpha_.data(), e_.data(), g_.data(), ul_.data(), scale_.data(), inv_.data(),
+          live_.data(), beta_.data(), X_.data(), gE_.data(), gA_.data(), g0_.data()};
   double ll = 0.0;
   for (int first = 0; first < view.count; first += W) {
     const int n = std::min(W, view.count - first);

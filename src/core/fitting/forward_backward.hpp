@@ -15,9 +15,9 @@
 //
 // Batched kernel (issue 11): kLanes episodes of one view run at once, one per vector lane
 // (structure of arrays, lane index fastest). Every lane performs exactly the sequence of IEEE
-// operations of one episode run alone: the action is selected by multiplying with 0/1 masks
-// (exact) and sums start from +0 and run in a fixed order (z ascending within a ascending); lanes
-// past an episode's end are masked out. kLanes is fixed, not the vector width, so the order in
+// operations of one episode run alone: the parameters of each lane's action and observation are
+// selected (a table permute or blends: exact), sums start from +0 and run in a fixed order (z
+// ascending), and lanes past an episode's end are left out by the same selections. kLanes is fixed, not the vector width, so the order in
 // which counts are summed over lanes does not depend on the CPU: the SSE2, AVX2 and AVX-512
 // builds of the kernel give the same bits (tests/core/fitting/test_forward_backward.cpp).
 #pragma once
@@ -78,18 +78,16 @@ class ForwardBackward {
   int Z_, A_, O_, H_;
   KernelPath path_;
   std::vector<double> q0_, qT_, qE_, qA_;  // qT_: [a][z][z'], qE_: [z][o], qA_: [z][a]
+  std::vector<double> pT_, pE_, pA_;       // selection tables of 8 slots: [z][z'][a], [z][o], [z][a]
   bool has_decision_ = false;
-  // Per batch (lane index fastest): alpha [t][z][l], e [t][z][l], scale and 1/scale [t][l],
-  // forward action masks [t][a][l] (a step past the end selects action 0), count masks [t][a][l]
-  // (0 past the end), observation masks [t][o][l] (0 past the end), lane liveness [l], lengths.
-  std::vector<double> alpha_, e_, scale_, inv_, fmask_, cmask_, omask_, idle_, live_, work_;
+  // Per batch (lane index fastest): alpha, e, gamma [t][z][l], u masked to the lane's steps
+  // [t][z'][l], scale and 1/scale [t][l], lane liveness [l], beta [z][l], lengths.
+  std::vector<double> alpha_, e_, g_, ul_, scale_, inv_, live_, beta_;
   std::vector<int> len_;
-  std::vector<double> ob_, ac_;  // o_t and a_t [t][l], -1 past the end
+  std::vector<long long> ob_, ac_;  // o_t and a_t [t][l], -1 past the end
   // Per call, summed over batches, per lane: X [a][z][z'][l] = sum alpha_t(z) u_{t+1}(z'),
   // gamma by observation [o][z][l], by action [a][z][l], initial [z][l].
   std::vector<double> X_, gE_, gA_, g0_;
-  std::vector<double> ua_;  // per batch: u_{t+1} masked by a_t, [t][a][z'][l]
-  std::vector<double> ll_;  // per-lane log-likelihood of the current batch
 };
 
 // MAP M-step: writes the new q0, qT, qE (and qA when decision is not null) into model/decision.

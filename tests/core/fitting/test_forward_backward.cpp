@@ -642,6 +642,166 @@ TEST_CASE("forward-backward: every compiled build of the kernel gives the same b
   if (kernel_path_supported(KernelPath::avx2)) CHECK(compared >= 16);
 }
 
+// The order of operations forward_backward.hpp promises, written out one episode at a time in
+// plain scalar double arithmetic (no vectors, no masks): scaled forward-backward (Rabiner 1989,
+// sec. V.A), every sum from +0 in the stated order, each episode's counts added to the accumulator
+// of lane (episode index mod kLanes) in step order t = L, L-1, ..., 0, and the lanes summed in
+// lane order at the end of the call. IEEE 754 operations are correctly rounded, so an
+// implementation that performs these operations in this order gives these bits whatever its
+// layout (IEEE Std 754-2008, clause 11). Returns the call's log-likelihood and adds to `c`.
+double fb_scalar_order(const Pomdp& m, const Matrix* D, const DataView& v, ExpectedCounts& c) {
+  const int Z = m.states, A = m.actions, O = m.observations, W = ForwardBackward::kLanes;
+  const bool w = v.regime == Regime::logged && D != nullptr && D->size() > 0;
+  const Dataset& d = *v.data;
+  auto ix = [](int i, int j, int n) { return static_cast<std::size_t>(i) * static_cast<std::size_t>(n) + static_cast<std::size_t>(j); };
+  std::vector<double> X(static_cast<std::size_t>(W * A * Z * Z), 0.0), gE(static_cast<std::size_t>(W * O * Z), 0.0),
+      gA(static_cast<std::size_t>(W * A * Z), 0.0), g0(static_cast<std::size_t>(W * Z), 0.0);
+  double ll = 0.0;
+  for (int i = 0; i < v.count; ++i) {
+    const int l = i % W, L = d.length(i);
+    const std::int32_t* o = d.obs(i);
+    const std::int32_t* a = d.act(i);
+    std::vector<double> e(ix(L + 1, 0, Z)), al(ix(L + 1, 0, Z)), sc(static_cast<std::size_t>(L + 1)),
+        inv(static_cast<std::size_t>(L + 1)), beta(static_cast<std::size_t>(Z), 1.0), u(static_cast<std::size_t>(Z));
+    // e_t(z) = qE(z, o_t) [x qA(z, a_t) on the logged steps t < L of a regime-aware fit]
+    for (int t = 0; t <= L; ++t)
+      for (int z = 0; z < Z; ++z) {
+        double x = m.emissions(z, o[t]);
+        if (w && t < L) x *= (*D)(z, a[t]);
+        e[ix(t, z, Z)] = x;
+      }
+    auto normalise = [&](int t) {
+      double s = 0.0;
+      for (int z = 0; z < Z; ++z) s += al[ix(t, z, Z)];
+      const double r = 1.0 / s;
+      for (int z = 0; z < Z; ++z) al[ix(t, z, Z)] *= r;
+      sc[static_cast<std::size_t>(t)] = s;
+      inv[static_cast<std::size_t>(t)] = r;
+    };
+    for (int z = 0; z < Z; ++z) al[ix(0, z, Z)] = m.initial(z) * e[ix(0, z, Z)];
+    normalise(0);
+    for (int t = 0; t < L; ++t) {
+      const Matrix& T = m.transitions[static_cast<std::size_t>(a[t])];
+      for (int y = 0; y < Z; ++y) {
+        double s = 0.0;
+        for (int z = 0; z < Z; ++z) s += al[ix(t, z, Z)] * T(z, y);
+        al[ix(t + 1, y, Z)] = s * e[ix(t + 1, y, Z)];
+      }
+      normalise(t + 1);
+    }
+    // log p = sum_t log c_t, as the log of a running product renewed below 1e-250
+    double lp = 0.0, product = sc[0];
+    for (int t = 1; t <= L; ++t) {
+      product *= sc[static_cast<std::size_t>(t)];
+      if (product < 1e-250) {
+        lp += std::log(product);
+        product = 1.0;
+      }
+    }
+    ll += lp + std::log(product);
+    // backward: beta_L = 1; u(y) = e_{t+1}(y) beta_{t+1}(y) / c_{t+1}; beta_t(z) = sum_y T[a_t](z, y) u(y)
+    for (int t = L; t >= 0; --t) {
+      if (t < L) {
+        const Matrix& T = m.transitions[static_cast<std::size_t>(a[t])];
+        for (int y = 0; y < Z; ++y) u[static_cast<std::size_t>(y)] = e[ix(t + 1, y, Z)] * beta[static_cast<std::size_t>(y)] * inv[static_cast<std::size_t>(t + 1)];
+        for (int z = 0; z < Z; ++z) {
+          double s = 0.0;
+          for (int y = 0; y < Z; ++y) s += T(z, y) * u[static_cast<std::size_t>(y)];
+          beta[static_cast<std::size_t>(z)] = s;
+        }
+        for (int z = 0; z < Z; ++z)
+          for (int y = 0; y < Z; ++y) X[ix(ix(l, a[t], A), z, Z) * Z + y] += al[ix(t, z, Z)] * u[static_cast<std::size_t>(y)];
+      }
+      for (int z = 0; z < Z; ++z) {
+        const double g = al[ix(t, z, Z)] * beta[static_cast<std::size_t>(z)];
+        gE[ix(ix(l, o[t], O), z, Z)] += g;
+        if (w && t < L) gA[ix(ix(l, a[t], A), z, Z)] += g;
+        if (t == 0) g0[ix(l, z, Z)] += g * 1.0;
+      }
+    }
+  }
+  if (v.count == 0) return 0.0;
+  auto lanes = [&](const std::vector<double>& x, std::size_t k, std::size_t per_lane) {
+    double s = 0.0;
+    for (int l = 0; l < W; ++l) s += x[static_cast<std::size_t>(l) * per_lane + k];
+    return s;
+  };
+  for (int a = 0; a < A; ++a)
+    for (int z = 0; z < Z; ++z)
+      for (int y = 0; y < Z; ++y)
+        c.transitions[static_cast<std::size_t>(a)](z, y) +=
+            m.transitions[static_cast<std::size_t>(a)](z, y) * lanes(X, ix(ix(a, z, Z), y, Z), static_cast<std::size_t>(A * Z * Z));
+  for (int z = 0; z < Z; ++z) {
+    c.initial(z) += lanes(g0, static_cast<std::size_t>(z), static_cast<std::size_t>(Z));
+    for (int o = 0; o < O; ++o) c.emissions(z, o) += lanes(gE, ix(o, z, Z), static_cast<std::size_t>(O * Z));
+    if (w)
+      for (int a = 0; a < A; ++a) c.decision(z, a) += lanes(gA, ix(a, z, Z), static_cast<std::size_t>(A * Z));
+  }
+  c.loglik += ll;
+  return ll;
+}
+
+bool fb_same_bits(const Matrix& x, const Matrix& y) {
+  return x.size() == y.size() && std::memcmp(x.data(), y.data(), sizeof(double) * static_cast<std::size_t>(x.size())) == 0;
+}
+
+TEST_CASE("forward-backward: every build of the kernel performs the operations of one episode run alone",
+          "[forward_backward]") {
+  // Sizes cover the compiled latent sizes (1-6, 8) and the general kernel (7, 11, 16), more than
+  // 8 actions or observations (the selection by table lookup needs at most 8), one action,
+  // batches partly filled and episodes that stop early (length 0 included).
+  struct Case {
+    int Z, A, O, H, n;
+  };
+  const Case cases[] = {{1, 2, 3, 5, 9},  {2, 2, 2, 8, 37}, {3, 3, 4, 6, 8},  {4, 2, 2, 8, 101}, {5, 3, 3, 7, 13},
+                        {6, 2, 5, 9, 21}, {7, 3, 3, 4, 10}, {8, 3, 6, 20, 50}, {8, 1, 8, 6, 17},  {8, 9, 3, 5, 23},
+                        {4, 4, 10, 6, 19}, {11, 3, 4, 5, 19}, {16, 2, 3, 4, 9}};
+  Engine rng(23);
+  int compared = 0;
+  for (const Case& k : cases) {
+    const Pomdp m = fb_random_model(k.Z, k.A, k.O, k.H, rng);
+    const Matrix D = fb_random_decision(k.Z, k.A, rng);
+    Dataset d = fb_random_dataset(k.n, k.H, k.A, k.O, rng);
+    boost::random::uniform_int_distribution<int> ul(0, k.H);
+    d.lengths.resize(static_cast<std::size_t>(k.n));
+    for (int i = 0; i < k.n; ++i) d.lengths[static_cast<std::size_t>(i)] = i % 3 == 0 ? ul(rng) : k.H;
+    for (Regime regime : {Regime::pilot, Regime::logged}) {
+      ExpectedCounts ref;
+      ref.reset(k.Z, k.A, k.O);
+      fb_scalar_order(m, &D, {&d, d.count, regime}, ref);
+      fb_scalar_order(m, &D, {&d, k.n / 2, regime}, ref);  // a second call adds to the same counts
+      for (KernelPath path : {KernelPath::baseline, KernelPath::avx2, KernelPath::avx512}) {
+        INFO("Z=" << k.Z << " A=" << k.A << " O=" << k.O << " n=" << k.n << " path " << kernel_path_name(path)
+                  << (regime == Regime::logged ? " logged" : " pilot"));
+        if (!kernel_path_supported(path)) {
+          WARN("kernel path " << kernel_path_name(path) << " not supported by this CPU: not compared");
+          continue;
+        }
+        ForwardBackward fb(k.Z, k.A, k.O, k.H);
+        fb.set_kernel_path(path);
+        fb.load(m, &D);
+        ExpectedCounts c;
+        c.reset(k.Z, k.A, k.O);
+        fb.accumulate({&d, d.count, regime}, c);
+        fb.accumulate({&d, k.n / 2, regime}, c);
+        CHECK(std::memcmp(&c.loglik, &ref.loglik, sizeof(double)) == 0);
+        CHECK(fb_same_bits(c.initial, ref.initial));
+        for (int a = 0; a < k.A; ++a)
+          CHECK(fb_same_bits(c.transitions[static_cast<std::size_t>(a)], ref.transitions[static_cast<std::size_t>(a)]));
+        CHECK(fb_same_bits(c.emissions, ref.emissions));
+        CHECK(fb_same_bits(c.decision, ref.decision));
+        ExpectedCounts once;
+        once.reset(k.Z, k.A, k.O);
+        const double ll_ref = fb_scalar_order(m, &D, {&d, d.count, regime}, once);
+        const double ll = fb.log_likelihood({&d, d.count, regime});
+        CHECK(std::memcmp(&ll, &ll_ref, sizeof(double)) == 0);
+        ++compared;
+      }
+    }
+  }
+  CHECK(compared >= 26);  // at least the baseline build for every case and regime
+}
+
 TEST_CASE("forward-backward: maximise is the Dirichlet MAP update of brute-force counts", "[forward_backward]") {
   // Reference: MAP of a multinomial row under a symmetric Dirichlet(prior + 1): (N_j + prior) / sum_j (N_j + prior)
   // (*common practice*; e.g. Murphy, Machine Learning: a Probabilistic Perspective, 2012, sec. 3.4.3).
