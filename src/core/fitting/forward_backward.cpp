@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <type_traits>
 
 namespace dobudget {
 
@@ -94,10 +95,24 @@ template <int ZC, bool Perm>
   }
 }
 
+// Output blocks: with the latent size fixed at compile time (ZC > 0) a step computes all ZC outputs
+// at once, their accumulators in registers; otherwise (ZC = 0) in blocks of kBlock outputs and then
+// one at a time. Every output is summed in the same order either way, so both give the same bits.
+constexpr int kBlock = 8;
+
+template <int ZC, typename Body>
+[[gnu::always_inline]] inline void in_blocks(int Z, Body&& body) {
+  if constexpr (ZC > 0) {
+    body(std::integral_constant<int, ZC>{}, 0);
+  } else {
+    int k0 = 0;
+    for (; k0 + kBlock <= Z; k0 += kBlock) body(std::integral_constant<int, kBlock>{}, k0);
+    for (; k0 < Z; ++k0) body(std::integral_constant<int, 1>{}, k0);
+  }
+}
+
 // Forward pass: alpha_t (normalised) and c_t, 1/c_t for t = 0..H of every lane:
 //   alpha_{t+1}(z') = [sum_z alpha_t(z) qT[a_t](z, z')] e_{t+1}(z'), summed over z ascending from +0.
-// ZC > 0 fixes the latent size at compile time (all Z outputs of a step accumulate at once);
-// ZC = 0 is the general case (one output at a time); both give the same bits.
 template <int ZC, bool Perm>
 [[gnu::always_inline]] inline void forward(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
@@ -110,28 +125,19 @@ template <int ZC, bool Perm>
     const double* e = b.e + (t + 1) * ZW;
     const Vi ai = ati(b.ac + t * W);
     const Vi fi = ai < 0 ? Vi{} : ai;  // past the end: action 0
-    if constexpr (ZC > 0) {
-      V s[ZC] = {};
-      for (int z = 0; z < ZC; ++z) {
+    in_blocks<ZC>(Z, [&](auto block, int y0) __attribute__((always_inline)) {
+      constexpr int B = decltype(block)::value;
+      V s[B] = {};
+      for (int z = 0; z < Z; ++z) {
         const V p = at(prev + z * W);
-        for (int y = 0; y < ZC; ++y) {
+        for (int k = 0; k < B; ++k) {
           V q;
-          pick<Perm>(q, b.pT + (z * ZC + y) * kPack, b.qT + z * ZC + y, ZZ, b.A, fi);
-          s[y] += p * q;
+          pick<Perm>(q, b.pT + (z * Z + y0 + k) * kPack, b.qT + z * Z + y0 + k, ZZ, b.A, fi);
+          s[k] += p * q;
         }
       }
-      for (int y = 0; y < ZC; ++y) at(cur + y * W) = s[y] * at(e + y * W);
-    } else {
-      for (int y = 0; y < Z; ++y) {
-        V s = {};
-        for (int z = 0; z < Z; ++z) {
-          V q;
-          pick<Perm>(q, b.pT + (z * Z + y) * kPack, b.qT + z * Z + y, ZZ, b.A, fi);
-          s += at(prev + z * W) * q;
-        }
-        at(cur + y * W) = s * at(e + y * W);
-      }
-    }
+      for (int k = 0; k < B; ++k) at(cur + (y0 + k) * W) = s[k] * at(e + (y0 + k) * W);
+    });
     normalise<ZC>(b, cur, t + 1);
   }
 }
@@ -157,67 +163,74 @@ template <int ZC, bool Perm>
     double* ul = b.ul + t * ZW;
     for (int y = 0; y < Z; ++y) at(ul + y * W) = idle ? zero : at(e + y * W) * at(beta + y * W) * inv;
     const V add = idle ? one : zero;
-    if constexpr (ZC > 0) {
-      V s[ZC] = {};
-      for (int y = 0; y < ZC; ++y) {
+    in_blocks<ZC>(Z, [&](auto block, int z0) __attribute__((always_inline)) {
+      constexpr int B = decltype(block)::value;
+      V s[B] = {};
+      for (int y = 0; y < Z; ++y) {
         const V v = at(ul + y * W);
-        for (int z = 0; z < ZC; ++z) {
+        for (int k = 0; k < B; ++k) {
           V q;
-          pick<Perm>(q, b.pT + (z * ZC + y) * kPack, b.qT + z * ZC + y, ZZ, b.A, fi);
-          s[z] += q * v;
+          pick<Perm>(q, b.pT + ((z0 + k) * Z + y) * kPack, b.qT + (z0 + k) * Z + y, ZZ, b.A, fi);
+          s[k] += q * v;
         }
       }
-      for (int z = 0; z < ZC; ++z) at(beta + z * W) = s[z] + add;
-    } else {
-      for (int z = 0; z < Z; ++z) {
-        V s = {};
-        for (int y = 0; y < Z; ++y) {
-          V q;
-          pick<Perm>(q, b.pT + (z * Z + y) * kPack, b.qT + z * Z + y, ZZ, b.A, fi);
-          s += q * at(ul + y * W);
-        }
-        at(beta + z * W) = s + add;
-      }
-    }
+      for (int k = 0; k < B; ++k) at(beta + (z0 + k) * W) = s[k] + add;
+    });
     const double* al = b.alpha + t * ZW;
     double* g = b.g + t * ZW;
     for (int z = 0; z < Z; ++z) at(g + z * W) = at(al + z * W) * at(beta + z * W);
   }
 }
 
-// X[a](z, z') += alpha_t(z) ul_t(z') on the lane's steps with a_t = a, t descending, for the AC
-// actions a0..a0+AC-1 at once (one product, AC selections); the counts of transitions are
-// qT[a](z, z') X[a](z, z'), multiplied once per call (ForwardBackward::accumulate).
-template <int ZC, int AC>
-[[gnu::always_inline]] inline void add_transitions(const Batch& b, int a0) {
+// X[a](z, z') += alpha_t(z) ul_t(z') on the lane's steps with a_t = a, t descending, for AC actions
+// a0..a0+AC-1 and B outputs z' = y0..y0+B-1 at once (one product, AC selections); the counts of
+// transitions are qT[a](z, z') X[a](z, z'), multiplied once per call (ForwardBackward::accumulate).
+template <int ZC, int B, int AC>
+[[gnu::always_inline]] inline void add_transitions(const Batch& b, int a0, int z, int y0) {
   const int Z = ZC > 0 ? ZC : b.Z;
   const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W;
-  for (int z = 0; z < Z; ++z) {
-    if constexpr (ZC > 0) {
-      V acc[AC][ZC];
-      for (int k = 0; k < AC; ++k)
-        for (int y = 0; y < ZC; ++y) acc[k][y] = at(b.X + (((a0 + k) * ZC + z) * ZC + y) * W);
-      for (int t = b.H - 1; t >= 0; --t) {
-        const Vi ai = ati(b.ac + t * W);
-        const V alz = at(b.alpha + t * ZW + z * W);
-        const double* ul = b.ul + t * ZW;
-        for (int y = 0; y < ZC; ++y) {
-          const V p = alz * at(ul + y * W);
-          for (int k = 0; k < AC; ++k) acc[k][y] = ai == a0 + k ? acc[k][y] + p : acc[k][y];
-        }
-      }
-      for (int k = 0; k < AC; ++k)
-        for (int y = 0; y < ZC; ++y) at(b.X + (((a0 + k) * ZC + z) * ZC + y) * W) = acc[k][y];
-    } else {
-      for (int y = 0; y < Z; ++y) {
-        double* x = b.X + ((static_cast<std::ptrdiff_t>(a0) * Z + z) * Z + y) * W;
-        V acc = at(x);
-        for (int t = b.H - 1; t >= 0; --t)
-          acc = ati(b.ac + t * W) == a0 ? acc + at(b.alpha + t * ZW + z * W) * at(b.ul + t * ZW + y * W) : acc;
-        at(x) = acc;
-      }
+  V acc[AC][B];
+  for (int k = 0; k < AC; ++k)
+    for (int j = 0; j < B; ++j) acc[k][j] = at(b.X + (((a0 + k) * Z + z) * Z + y0 + j) * W);
+  for (int t = b.H - 1; t >= 0; --t) {
+    const Vi ai = ati(b.ac + t * W);
+    const V alz = at(b.alpha + t * ZW + z * W);
+    const double* ul = b.ul + t * ZW + y0 * W;
+    for (int j = 0; j < B; ++j) {
+      const V p = alz * at(ul + j * W);
+      for (int k = 0; k < AC; ++k) acc[k][j] = ai == a0 + k ? acc[k][j] + p : acc[k][j];
     }
   }
+  for (int k = 0; k < AC; ++k)
+    for (int j = 0; j < B; ++j) at(b.X + (((a0 + k) * Z + z) * Z + y0 + j) * W) = acc[k][j];
+}
+
+template <int ZC>
+[[gnu::always_inline]] inline void count_transitions(const Batch& b) {
+  const int Z = ZC > 0 ? ZC : b.Z;
+  // As many actions at once as keep about 24 accumulators in registers.
+  constexpr int B = ZC > 0 ? ZC : kBlock;
+  constexpr int most = B >= 8 ? 3 : B >= 5 ? 4 : B >= 3 ? 6 : 8;
+  for (int z = 0; z < Z; ++z)
+    in_blocks<ZC>(Z, [&](auto block, int y0) __attribute__((always_inline)) {
+      constexpr int BB = decltype(block)::value;
+      constexpr int most_here = BB == 1 ? 8 : most;
+      int a0 = 0;
+      while (a0 < b.A) {
+        const int n = std::min(most_here, b.A - a0);
+        switch (n) {
+          case 1: add_transitions<ZC, BB, 1>(b, a0, z, y0); break;
+          case 2: add_transitions<ZC, BB, 2>(b, a0, z, y0); break;
+          case 3: add_transitions<ZC, BB, 3>(b, a0, z, y0); break;
+          case 4: add_transitions<ZC, BB, most_here >= 4 ? 4 : 1>(b, a0, z, y0); break;
+          case 5: add_transitions<ZC, BB, most_here >= 5 ? 5 : 1>(b, a0, z, y0); break;
+          case 6: add_transitions<ZC, BB, most_here >= 6 ? 6 : 1>(b, a0, z, y0); break;
+          case 7: add_transitions<ZC, BB, most_here >= 7 ? 7 : 1>(b, a0, z, y0); break;
+          default: add_transitions<ZC, BB, most_here >= 8 ? 8 : 1>(b, a0, z, y0); break;
+        }
+        a0 += n;
+      }
+    });
 }
 
 // gamma_t added by observation (t = H..0), by action (t = H-1..0, when wanted) and, at t = 0, to
@@ -226,55 +239,25 @@ template <int ZC>
 [[gnu::always_inline]] inline void add_gamma(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
   const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W;
-  auto by = [&](double* sums, const long long* index, int n, int last) {
+  auto by = [&](double* sums, const long long* index, int n, int last) __attribute__((always_inline)) {
     for (int k = 0; k < n; ++k) {
       double* s = sums + static_cast<std::ptrdiff_t>(k) * ZW;
-      if constexpr (ZC > 0) {
-        V acc[ZC];
-        for (int z = 0; z < ZC; ++z) acc[z] = at(s + z * W);
+      in_blocks<ZC>(Z, [&](auto block, int z0) __attribute__((always_inline)) {
+        constexpr int B = decltype(block)::value;
+        V acc[B];
+        for (int j = 0; j < B; ++j) acc[j] = at(s + (z0 + j) * W);
         for (int t = last; t >= 0; --t) {
           const Vi hit = ati(index + t * W) == k;
-          const double* g = b.g + t * ZW;
-          for (int z = 0; z < ZC; ++z) acc[z] = hit ? acc[z] + at(g + z * W) : acc[z];
+          const double* g = b.g + t * ZW + z0 * W;
+          for (int j = 0; j < B; ++j) acc[j] = hit ? acc[j] + at(g + j * W) : acc[j];
         }
-        for (int z = 0; z < ZC; ++z) at(s + z * W) = acc[z];
-      } else {
-        for (int z = 0; z < Z; ++z) {
-          V acc = at(s + z * W);
-          for (int t = last; t >= 0; --t) acc = ati(index + t * W) == k ? acc + at(b.g + t * ZW + z * W) : acc;
-          at(s + z * W) = acc;
-        }
-      }
+        for (int j = 0; j < B; ++j) at(s + (z0 + j) * W) = acc[j];
+      });
     }
   };
   by(b.gE, b.ob, b.O, b.H);
   if (b.decision) by(b.gA, b.ac, b.A, b.H - 1);
   for (int z = 0; z < Z; ++z) at(b.g0 + z * W) += at(b.g + z * W) * at(b.live);
-}
-
-template <int ZC>
-[[gnu::always_inline]] inline void count_transitions(const Batch& b) {
-  // As many actions at once as keep about 24 accumulators in registers.
-  constexpr int most = ZC == 0 ? 1 : ZC >= 8 ? 3 : ZC >= 5 ? 4 : ZC >= 3 ? 6 : 8;
-  int a0 = 0;
-  while (a0 < b.A) {
-    const int n = std::min(most, b.A - a0);
-    if constexpr (ZC > 0) {
-      switch (n) {
-        case 1: add_transitions<ZC, 1>(b, a0); break;
-        case 2: add_transitions<ZC, 2>(b, a0); break;
-        case 3: add_transitions<ZC, 3>(b, a0); break;
-        case 4: add_transitions<ZC, most >= 4 ? 4 : 1>(b, a0); break;
-        case 5: add_transitions<ZC, most >= 5 ? 5 : 1>(b, a0); break;
-        case 6: add_transitions<ZC, most >= 6 ? 6 : 1>(b, a0); break;
-        case 7: add_transitions<ZC, most >= 7 ? 7 : 1>(b, a0); break;
-        default: add_transitions<ZC, most >= 8 ? 8 : 1>(b, a0); break;
-      }
-    } else {
-      add_transitions<0, 1>(b, a0);
-    }
-    a0 += n;
-  }
 }
 
 template <int ZC, bool Perm>
@@ -296,6 +279,7 @@ template <bool Perm>
     case 4: run_batch<4, Perm>(b, counts); break;
     case 5: run_batch<5, Perm>(b, counts); break;
     case 6: run_batch<6, Perm>(b, counts); break;
+    case 7: run_batch<7, Perm>(b, counts); break;
     case 8: run_batch<8, Perm>(b, counts); break;
     default: run_batch<0, Perm>(b, counts); break;
   }

@@ -41,12 +41,12 @@ std::vector<MemoryPart> unit_memory(const ScenarioSettings& s) {
     parts.push_back({MemoryPartId::evaluation_histories,
                      T * (2.0 * H + 1.0) * int_bytes + 3.0 * T * (H + 1.0) * O * double_bytes,
                      {{Driver::trajectories, T}, {Driver::horizon, H}, {Driver::observations, O}}});
-  // The forward-backward workspace (forward_backward.hpp): per lane of a batch, (H + 1)(2Z + 3 + O)
-  // (alpha, e, scale, 1/scale, o_t, observation masks), H(2A + 2 + AZ) (action masks, idle, a_t, u
-  // by action) and (2A + 3)Z + AZ^2 + OZ + AZ + Z + 1 (work, transition and gamma sums, liveness).
+  // The forward-backward workspace (forward_backward.hpp): per lane of a batch, (H + 1)(3Z + 3)
+  // (alpha, e, gamma, scale, 1/scale, o_t), H(Z + 1) (u, a_t) and Z + AZ^2 + OZ + AZ + Z + 1
+  // (beta, transition and gamma sums, liveness); once, the selection tables 8(Z^2 + 2Z).
   const double lanes = static_cast<double>(ForwardBackward::kLanes);
-  const double fb_doubles = lanes * ((H + 1.0) * (2.0 * Z + 3.0 + O) + H * (2.0 * A + 2.0 + A * Z) +
-                                     (2.0 * A + 3.0) * Z + A * Z * Z + O * Z + A * Z + Z + 1.0);
+  const double fb_doubles = lanes * ((H + 1.0) * (3.0 * Z + 3.0) + H * (Z + 1.0) + Z + A * Z * Z + O * Z + A * Z + Z + 1.0) +
+                            8.0 * (Z * Z + 2.0 * Z);
   parts.push_back({MemoryPartId::model_fit,
                    15.0 * n * double_bytes + fb_doubles * double_bytes,
                    {{Driver::latent_states, Z}, {Driver::actions, A}, {Driver::observations, O}, {Driver::horizon, H}}});

@@ -10,11 +10,12 @@
 //   datasets         (P + L) (2H + 1) x 4                       int32 observations and actions
 //   evaluation       T (2H + 1) x 4 + 3 T (H + 1) O x 8          histories, true predictives and their
 //                                                                logs, one fitted model's predictives
-//   fit              15 n x 8 + 8 x 8 x [(H + 1)(2Z + 3 + O)         n = Z + A Z^2 + Z O + Z A parameters:
-//                    + H (2A + 2 + AZ) + (2A + 3) Z + A Z^2      SQUAREM's 3 counts, 6 packed vectors and
-//                    + O Z + A Z + Z + 1]                        about 5 parameter copies (15 rounds up
+//   fit              15 n x 8 + 8 x 8 x [(H + 1)(3Z + 3)             n = Z + A Z^2 + Z O + Z A parameters:
+//                    + H (Z + 1) + Z + A Z^2 + O Z + A Z + Z + 1]  SQUAREM's 3 counts, 6 packed vectors and
+//                    + 8 x 8 (Z^2 + 2Z)                          about 5 parameter copies (15 rounds up
 //                                                                14); forward-backward's workspace for a
-//                                                                batch of 8 episodes (memory_estimate.cpp)
+//                                                                batch of 8 episodes and its selection
+//                                                                tables (memory_estimate.cpp)
 //   fits kept        F n x 8                                     every fitted model of the unit
 //   planner          plan_bytes(Z) + 3 R x 8                     the fitted model's plan; the true and
 //                                                                fitted plans' rollout returns

@@ -53,9 +53,9 @@ TEST_CASE("memory estimate: a tiny case counted by hand", "[memory_estimate]") {
   CHECK(part(parts, MemoryPartId::evaluation_histories) == 2772.0);
   //   n = Z + A Z^2 + Z O + Z A = 2 + 8 + 6 + 4 = 20 parameters;
   //   fit: 15 x 20 x 8 = 2400; forward-backward workspace per lane (Z 2, A 2, O 3, H 4):
-  //   5 x (4 + 3 + 3) = 50, 4 x (4 + 2 + 4) = 40, 7 x 2 + 8 + 6 + 4 + 2 + 1 = 35, 125 doubles
-  //   x 8 lanes x 8 bytes = 8000 -> 10400
-  CHECK(part(parts, MemoryPartId::model_fit) == 10400.0);
+  //   5 x (6 + 3) = 45, 4 x (2 + 1) = 12, 2 + 8 + 6 + 4 + 2 + 1 = 23, 80 doubles x 8 lanes = 640,
+  //   selection tables 8 x (4 + 4) = 64: 704 doubles x 8 bytes = 5632 -> 8032
+  CHECK(part(parts, MemoryPartId::model_fit) == 8032.0);
   //   fits per unit: pilot-only x {5, 10}, pooled and regime-aware x 20 x {5, 10} = 6 -> 6 x 20 x 8 = 960
   CHECK(fits_per_unit(st.scenarios[0].settings) == 6);
   CHECK(part(parts, MemoryPartId::fitted_models_kept) == 960.0);
@@ -65,7 +65,7 @@ TEST_CASE("memory estimate: a tiny case counted by hand", "[memory_estimate]") {
   CHECK(part(parts, MemoryPartId::planner_true) == 2208.0);
 
   const MemoryEstimate m = estimate_memory(st, 4);
-  const double unit = 1080.0 + 2772.0 + 10400.0 + 960.0 + 2424.0 + 2208.0;
+  const double unit = 1080.0 + 2772.0 + 8032.0 + 960.0 + 2424.0 + 2208.0;
   CHECK(m.unit_bytes == unit);
   CHECK(m.concurrent_units == 4);  // 15 units, 4 threads
   //   results: 15 units x (3 strategies x 2 logged x 2 pilot = 12 rows) x bytes_per_row
