@@ -25,71 +25,133 @@ struct Batch {
   bool decision;   // e_t multiplies the decision rule, and gamma by action is wanted
   const double *q0, *qT, *qE, *qA;  // qT [a][z][z'], qE [z][o], qA [z][a]
   const double *pT, *pE, *pA;       // the same as selection tables: [z][z'][a], [z][o], [z][a], kPack slots each
-  const long long *ob, *ac;         // [t][l]: o_t and a_t of each lane, -1 past its end (and on empty lanes)
+  const double *ob, *ac;            // [t][l]: o_t and a_t of each lane, -1 past its end (and on empty lanes)
   double *alpha, *e, *g, *ul, *scale, *inv;  // [t][z][l] (ul: [t][z'][l]), scale and inv [t][l]
   const double* live;
   double* beta;  // Z W doubles
   double *X, *gE, *gA, *g0;
 };
 
-// W lanes as one GCC vector (element-wise IEEE operations; the compiler splits it into as many
-// registers as the target has: 4 SSE2, 2 AVX2 or 1 AVX-512). Unaligned loads and stores.
-typedef double V __attribute__((vector_size(W * sizeof(double)), aligned(sizeof(double))));
-typedef long long Vi __attribute__((vector_size(W * sizeof(long long)), aligned(sizeof(long long))));
-[[gnu::always_inline]] inline V& at(double* p) { return *reinterpret_cast<V*>(p); }
-[[gnu::always_inline]] inline const V& at(const double* p) { return *reinterpret_cast<const V*>(p); }
-[[gnu::always_inline]] inline const Vi& ati(const long long* p) { return *reinterpret_cast<const Vi*>(p); }
+// The W lanes of a batch as W / N native vectors of N doubles (N = 8 for AVX-512, 4 for AVX2, 2 for
+// SSE2), so that every build compares and selects at its own register width (GCC splits a wider
+// vector's arithmetic into registers, but lowers its comparisons and selections lane by lane).
+// Element-wise IEEE operations only; unaligned loads and stores.
+template <int N>
+struct Lanes {
+  typedef double D __attribute__((vector_size(N * sizeof(double)), aligned(sizeof(double))));
+  typedef long long I __attribute__((vector_size(N * sizeof(long long)), aligned(sizeof(long long))));
+  static constexpr int C = W / N;
+  D v[C];
+
+  struct Mask {
+    I m[C];
+  };
+  [[gnu::always_inline]] static Lanes splat(double x) {
+    Lanes r;
+    for (int c = 0; c < C; ++c) r.v[c] = D{} + x;
+    return r;
+  }
+  [[gnu::always_inline]] Lanes& operator+=(const Lanes& o) {
+    for (int c = 0; c < C; ++c) v[c] += o.v[c];
+    return *this;
+  }
+  [[gnu::always_inline]] Lanes& operator*=(const Lanes& o) {
+    for (int c = 0; c < C; ++c) v[c] *= o.v[c];
+    return *this;
+  }
+  [[gnu::always_inline]] friend Lanes operator+(Lanes a, const Lanes& b) { return a += b; }
+  [[gnu::always_inline]] friend Lanes operator*(Lanes a, const Lanes& b) { return a *= b; }
+  [[gnu::always_inline]] friend Lanes operator*(Lanes a, double x) {
+    for (int c = 0; c < C; ++c) a.v[c] *= x;
+    return a;
+  }
+  [[gnu::always_inline]] friend Lanes operator*(double x, Lanes a) {
+    for (int c = 0; c < C; ++c) a.v[c] = x * a.v[c];
+    return a;
+  }
+  [[gnu::always_inline]] friend Lanes operator/(double x, const Lanes& a) {
+    Lanes r;
+    for (int c = 0; c < C; ++c) r.v[c] = x / a.v[c];
+    return r;
+  }
+  [[gnu::always_inline]] friend Mask operator==(const Lanes& a, double x) {
+    Mask r;
+    for (int c = 0; c < C; ++c) r.m[c] = a.v[c] == x;
+    return r;
+  }
+  [[gnu::always_inline]] friend Mask operator<(const Lanes& a, double x) {
+    Mask r;
+    for (int c = 0; c < C; ++c) r.m[c] = a.v[c] < x;
+    return r;
+  }
+  // Lane by lane: m ? a : b (a selection: exact, whatever a and b hold).
+  [[gnu::always_inline]] friend Lanes select(const Mask& m, const Lanes& a, const Lanes& b) {
+    Lanes r;
+    for (int c = 0; c < C; ++c) r.v[c] = m.m[c] ? a.v[c] : b.v[c];
+    return r;
+  }
+};
+
+template <class L>
+[[gnu::always_inline]] inline L& at(double* p) {
+  return *reinterpret_cast<L*>(p);
+}
+template <class L>
+[[gnu::always_inline]] inline const L& at(const double* p) {
+  return *reinterpret_cast<const L*>(p);
+}
 
 // Lane l gets table[idx_l * stride], i.e. the parameter of the lane's own action or observation:
-// a selection, exact whatever its implementation. Perm: one variable permute of the kPack-slot
-// table `pack` (AVX-512 vpermpd; idx in 0..7, so -1 gives slot 7); otherwise a chain of blends
-// of broadcast entries (idx outside 0..n-1 gives entry 0).
-template <bool Perm>
-[[gnu::always_inline]] inline void pick(V& v, const double* pack, const double* table, std::ptrdiff_t stride, int n,
-                                        Vi idx) {
+// a selection, exact whatever its implementation. Perm (AVX-512 only, N = 8): one variable permute
+// of the kPack-slot table `pack`, idx converted to integers in 0..kPack-1. Otherwise a chain of
+// selections among broadcast entries (idx outside 0..n-1 gives entry 0).
+template <class L, bool Perm>
+[[gnu::always_inline]] inline void pick(L& v, const double* pack, const double* table, std::ptrdiff_t stride, int n,
+                                        const L& idx) {
   if constexpr (Perm) {
-    v = __builtin_shuffle(at(pack), idx);
+    static_assert(L::C == 1, "the table permute needs one register of 8 lanes");
+    v.v[0] = __builtin_shuffle(at<L>(pack).v[0], __builtin_convertvector(idx.v[0], typename L::I));
   } else {
-    v = V{} + table[0];
-    for (int k = 1; k < n; ++k) v = idx == k ? V{} + table[k * stride] : v;
+    v = L::splat(table[0]);
+    for (int k = 1; k < n; ++k) v = select(idx == static_cast<double>(k), L::splat(table[k * stride]), v);
   }
 }
 
 // c_t = sum_z alpha_t(z), summed from +0 in z order; alpha_t *= 1 / c_t.
-template <int ZC>
+template <class L, int ZC>
 [[gnu::always_inline]] inline void normalise(const Batch& b, double* al, int t) {
   const int Z = ZC > 0 ? ZC : b.Z;
-  V c = {};
-  for (int z = 0; z < Z; ++z) c += at(al + z * W);
-  const V inv = 1.0 / c;
-  for (int z = 0; z < Z; ++z) at(al + z * W) *= inv;
-  at(b.scale + t * W) = c;
-  at(b.inv + t * W) = inv;
+  L c = L::splat(0.0);
+  for (int z = 0; z < Z; ++z) c += at<L>(al + z * W);
+  const L inv = 1.0 / c;
+  for (int z = 0; z < Z; ++z) at<L>(al + z * W) *= inv;
+  at<L>(b.scale + t * W) = c;
+  at<L>(b.inv + t * W) = inv;
 }
 
 // e_t(z) = qE(z, o_t) [x qA(z, a_t) on steps t < L of a lane when the decision rule is loaded];
 // 1 past a lane's end, so the numbers there stay finite (a step past the end selects action 0 in
 // the forward pass, and every count it could reach is left out by the selections below).
-template <int ZC, bool Perm>
+template <class L, int ZC, bool Perm>
 [[gnu::always_inline]] inline void prepare(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
-  const V one = V{} + 1.0;
+  const L one = L::splat(1.0);
   for (int t = 0; t <= b.H; ++t) {
-    const Vi oi = ati(b.ob + t * W);
-    const Vi gone = oi < 0;
+    const L oi = at<L>(b.ob + t * W);
+    const auto gone = oi < 0.0;
     double* e = b.e + static_cast<std::ptrdiff_t>(t) * Z * W;
     for (int z = 0; z < Z; ++z) {
-      V q;
-      pick<Perm>(q, b.pE + z * kPack, b.qE + z * b.O, 1, b.O, oi);
-      at(e + z * W) = gone ? one : q;
+      L q;
+      pick<L, Perm>(q, b.pE + z * kPack, b.qE + z * b.O, 1, b.O, oi);
+      at<L>(e + z * W) = select(gone, one, q);
     }
     if (b.decision && t < b.H) {
-      const Vi ai = ati(b.ac + t * W);
-      const Vi idle = ai < 0;
+      const L ai = at<L>(b.ac + t * W);
+      const auto idle = ai < 0.0;
       for (int z = 0; z < Z; ++z) {
-        V q;
-        pick<Perm>(q, b.pA + z * kPack, b.qA + z * b.A, 1, b.A, ai);
-        at(e + z * W) *= idle ? one : q;
+        L q;
+        pick<L, Perm>(q, b.pA + z * kPack, b.qA + z * b.A, 1, b.A, ai);
+        at<L>(e + z * W) *= select(idle, one, q);
       }
     }
   }
@@ -113,32 +175,35 @@ template <int ZC, typename Body>
 
 // Forward pass: alpha_t (normalised) and c_t, 1/c_t for t = 0..H of every lane:
 //   alpha_{t+1}(z') = [sum_z alpha_t(z) qT[a_t](z, z')] e_{t+1}(z'), summed over z ascending from +0.
-template <int ZC, bool Perm>
+// (Lambdas below are always_inline: a lambda does not inherit its caller's target attribute.)
+template <class L, int ZC, bool Perm>
 [[gnu::always_inline]] inline void forward(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
   const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W, ZZ = static_cast<std::ptrdiff_t>(Z) * Z;
-  for (int z = 0; z < Z; ++z) at(b.alpha + z * W) = b.q0[z] * at(b.e + z * W);
-  normalise<ZC>(b, b.alpha, 0);
+  for (int z = 0; z < Z; ++z) at<L>(b.alpha + z * W) = b.q0[z] * at<L>(b.e + z * W);
+  normalise<L, ZC>(b, b.alpha, 0);
+  const L zero = L::splat(0.0);
   for (int t = 0; t < b.H; ++t) {
     const double* prev = b.alpha + t * ZW;
     double* cur = b.alpha + (t + 1) * ZW;
     const double* e = b.e + (t + 1) * ZW;
-    const Vi ai = ati(b.ac + t * W);
-    const Vi fi = ai < 0 ? Vi{} : ai;  // past the end: action 0
+    const L ai = at<L>(b.ac + t * W);
+    const L fi = select(ai < 0.0, zero, ai);  // past the end: action 0
     in_blocks<ZC>(Z, [&](auto block, int y0) __attribute__((always_inline)) {
       constexpr int B = decltype(block)::value;
-      V s[B] = {};
+      L s[B];
+      for (int k = 0; k < B; ++k) s[k] = zero;
       for (int z = 0; z < Z; ++z) {
-        const V p = at(prev + z * W);
+        const L p = at<L>(prev + z * W);
         for (int k = 0; k < B; ++k) {
-          V q;
-          pick<Perm>(q, b.pT + (z * Z + y0 + k) * kPack, b.qT + z * Z + y0 + k, ZZ, b.A, fi);
+          L q;
+          pick<L, Perm>(q, b.pT + (z * Z + y0 + k) * kPack, b.qT + z * Z + y0 + k, ZZ, b.A, fi);
           s[k] += p * q;
         }
       }
-      for (int k = 0; k < B; ++k) at(cur + (y0 + k) * W) = s[k] * at(e + (y0 + k) * W);
+      for (int k = 0; k < B; ++k) at<L>(cur + (y0 + k) * W) = s[k] * at<L>(e + (y0 + k) * W);
     });
-    normalise<ZC>(b, cur, t + 1);
+    normalise<L, ZC>(b, cur, t + 1);
   }
 }
 
@@ -146,66 +211,67 @@ template <int ZC, bool Perm>
 //   u_{t+1}(z') = e_{t+1}(z') beta_{t+1}(z') / c_{t+1}   (kept as ul, 0 past the lane's end)
 //   beta_t(z) = sum_z' qT[a_t](z, z') ul(z')            (z' ascending from +0; + 1 past the end)
 //   gamma_t(z) = alpha_t(z) beta_t(z)                    (kept as g; g_H = alpha_H)
-template <int ZC, bool Perm>
+template <class L, int ZC, bool Perm>
 [[gnu::always_inline]] inline void backward(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
   const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W, ZZ = static_cast<std::ptrdiff_t>(Z) * Z;
-  const V one = V{} + 1.0, zero = {};
+  const L one = L::splat(1.0), zero = L::splat(0.0);
   double* beta = b.beta;
-  for (int z = 0; z < Z; ++z) at(beta + z * W) = one;
-  for (int z = 0; z < Z; ++z) at(b.g + b.H * ZW + z * W) = at(b.alpha + b.H * ZW + z * W);
+  for (int z = 0; z < Z; ++z) at<L>(beta + z * W) = one;
+  for (int z = 0; z < Z; ++z) at<L>(b.g + b.H * ZW + z * W) = at<L>(b.alpha + b.H * ZW + z * W);
   for (int t = b.H - 1; t >= 0; --t) {
     const double* e = b.e + (t + 1) * ZW;
-    const V inv = at(b.inv + (t + 1) * W);
-    const Vi ai = ati(b.ac + t * W);
-    const Vi idle = ai < 0;
-    const Vi fi = idle ? Vi{} : ai;
+    const L inv = at<L>(b.inv + (t + 1) * W);
+    const L ai = at<L>(b.ac + t * W);
+    const auto idle = ai < 0.0;
+    const L fi = select(idle, zero, ai);
     double* ul = b.ul + t * ZW;
-    for (int y = 0; y < Z; ++y) at(ul + y * W) = idle ? zero : at(e + y * W) * at(beta + y * W) * inv;
-    const V add = idle ? one : zero;
+    for (int y = 0; y < Z; ++y) at<L>(ul + y * W) = select(idle, zero, at<L>(e + y * W) * at<L>(beta + y * W) * inv);
+    const L add = select(idle, one, zero);
     in_blocks<ZC>(Z, [&](auto block, int z0) __attribute__((always_inline)) {
       constexpr int B = decltype(block)::value;
-      V s[B] = {};
+      L s[B];
+      for (int k = 0; k < B; ++k) s[k] = zero;
       for (int y = 0; y < Z; ++y) {
-        const V v = at(ul + y * W);
+        const L v = at<L>(ul + y * W);
         for (int k = 0; k < B; ++k) {
-          V q;
-          pick<Perm>(q, b.pT + ((z0 + k) * Z + y) * kPack, b.qT + (z0 + k) * Z + y, ZZ, b.A, fi);
+          L q;
+          pick<L, Perm>(q, b.pT + ((z0 + k) * Z + y) * kPack, b.qT + (z0 + k) * Z + y, ZZ, b.A, fi);
           s[k] += q * v;
         }
       }
-      for (int k = 0; k < B; ++k) at(beta + (z0 + k) * W) = s[k] + add;
+      for (int k = 0; k < B; ++k) at<L>(beta + (z0 + k) * W) = s[k] + add;
     });
     const double* al = b.alpha + t * ZW;
     double* g = b.g + t * ZW;
-    for (int z = 0; z < Z; ++z) at(g + z * W) = at(al + z * W) * at(beta + z * W);
+    for (int z = 0; z < Z; ++z) at<L>(g + z * W) = at<L>(al + z * W) * at<L>(beta + z * W);
   }
 }
 
 // X[a](z, z') += alpha_t(z) ul_t(z') on the lane's steps with a_t = a, t descending, for AC actions
 // a0..a0+AC-1 and B outputs z' = y0..y0+B-1 at once (one product, AC selections); the counts of
 // transitions are qT[a](z, z') X[a](z, z'), multiplied once per call (ForwardBackward::accumulate).
-template <int ZC, int B, int AC>
+template <class L, int ZC, int B, int AC>
 [[gnu::always_inline]] inline void add_transitions(const Batch& b, int a0, int z, int y0) {
   const int Z = ZC > 0 ? ZC : b.Z;
   const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W;
-  V acc[AC][B];
+  L acc[AC][B];
   for (int k = 0; k < AC; ++k)
-    for (int j = 0; j < B; ++j) acc[k][j] = at(b.X + (((a0 + k) * Z + z) * Z + y0 + j) * W);
+    for (int j = 0; j < B; ++j) acc[k][j] = at<L>(b.X + (((a0 + k) * Z + z) * Z + y0 + j) * W);
   for (int t = b.H - 1; t >= 0; --t) {
-    const Vi ai = ati(b.ac + t * W);
-    const V alz = at(b.alpha + t * ZW + z * W);
+    const L ai = at<L>(b.ac + t * W);
+    const L alz = at<L>(b.alpha + t * ZW + z * W);
     const double* ul = b.ul + t * ZW + y0 * W;
     for (int j = 0; j < B; ++j) {
-      const V p = alz * at(ul + j * W);
-      for (int k = 0; k < AC; ++k) acc[k][j] = ai == a0 + k ? acc[k][j] + p : acc[k][j];
+      const L p = alz * at<L>(ul + j * W);
+      for (int k = 0; k < AC; ++k) acc[k][j] = select(ai == static_cast<double>(a0 + k), acc[k][j] + p, acc[k][j]);
     }
   }
   for (int k = 0; k < AC; ++k)
-    for (int j = 0; j < B; ++j) at(b.X + (((a0 + k) * Z + z) * Z + y0 + j) * W) = acc[k][j];
+    for (int j = 0; j < B; ++j) at<L>(b.X + (((a0 + k) * Z + z) * Z + y0 + j) * W) = acc[k][j];
 }
 
-template <int ZC>
+template <class L, int ZC>
 [[gnu::always_inline]] inline void count_transitions(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
   // As many actions at once as keep about 24 accumulators in registers.
@@ -219,14 +285,14 @@ template <int ZC>
       while (a0 < b.A) {
         const int n = std::min(most_here, b.A - a0);
         switch (n) {
-          case 1: add_transitions<ZC, BB, 1>(b, a0, z, y0); break;
-          case 2: add_transitions<ZC, BB, 2>(b, a0, z, y0); break;
-          case 3: add_transitions<ZC, BB, 3>(b, a0, z, y0); break;
-          case 4: add_transitions<ZC, BB, most_here >= 4 ? 4 : 1>(b, a0, z, y0); break;
-          case 5: add_transitions<ZC, BB, most_here >= 5 ? 5 : 1>(b, a0, z, y0); break;
-          case 6: add_transitions<ZC, BB, most_here >= 6 ? 6 : 1>(b, a0, z, y0); break;
-          case 7: add_transitions<ZC, BB, most_here >= 7 ? 7 : 1>(b, a0, z, y0); break;
-          default: add_transitions<ZC, BB, most_here >= 8 ? 8 : 1>(b, a0, z, y0); break;
+          case 1: add_transitions<L, ZC, BB, 1>(b, a0, z, y0); break;
+          case 2: add_transitions<L, ZC, BB, 2>(b, a0, z, y0); break;
+          case 3: add_transitions<L, ZC, BB, 3>(b, a0, z, y0); break;
+          case 4: add_transitions<L, ZC, BB, most_here >= 4 ? 4 : 1>(b, a0, z, y0); break;
+          case 5: add_transitions<L, ZC, BB, most_here >= 5 ? 5 : 1>(b, a0, z, y0); break;
+          case 6: add_transitions<L, ZC, BB, most_here >= 6 ? 6 : 1>(b, a0, z, y0); break;
+          case 7: add_transitions<L, ZC, BB, most_here >= 7 ? 7 : 1>(b, a0, z, y0); break;
+          default: add_transitions<L, ZC, BB, most_here >= 8 ? 8 : 1>(b, a0, z, y0); break;
         }
         a0 += n;
       }
@@ -235,70 +301,71 @@ template <int ZC>
 
 // gamma_t added by observation (t = H..0), by action (t = H-1..0, when wanted) and, at t = 0, to
 // the initial counts; each sum over t descending, the accumulators in registers.
-template <int ZC>
+template <class L, int ZC>
 [[gnu::always_inline]] inline void add_gamma(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
   const std::ptrdiff_t ZW = static_cast<std::ptrdiff_t>(Z) * W;
-  auto by = [&](double* sums, const long long* index, int n, int last) __attribute__((always_inline)) {
+  auto by = [&](double* sums, const double* index, int n, int last) __attribute__((always_inline)) {
     for (int k = 0; k < n; ++k) {
       double* s = sums + static_cast<std::ptrdiff_t>(k) * ZW;
       in_blocks<ZC>(Z, [&](auto block, int z0) __attribute__((always_inline)) {
         constexpr int B = decltype(block)::value;
-        V acc[B];
-        for (int j = 0; j < B; ++j) acc[j] = at(s + (z0 + j) * W);
+        L acc[B];
+        for (int j = 0; j < B; ++j) acc[j] = at<L>(s + (z0 + j) * W);
         for (int t = last; t >= 0; --t) {
-          const Vi hit = ati(index + t * W) == k;
+          const auto hit = at<L>(index + t * W) == static_cast<double>(k);
           const double* g = b.g + t * ZW + z0 * W;
-          for (int j = 0; j < B; ++j) acc[j] = hit ? acc[j] + at(g + j * W) : acc[j];
+          for (int j = 0; j < B; ++j) acc[j] = select(hit, acc[j] + at<L>(g + j * W), acc[j]);
         }
-        for (int j = 0; j < B; ++j) at(s + (z0 + j) * W) = acc[j];
+        for (int j = 0; j < B; ++j) at<L>(s + (z0 + j) * W) = acc[j];
       });
     }
   };
   by(b.gE, b.ob, b.O, b.H);
   if (b.decision) by(b.gA, b.ac, b.A, b.H - 1);
-  for (int z = 0; z < Z; ++z) at(b.g0 + z * W) += at(b.g + z * W) * at(b.live);
+  for (int z = 0; z < Z; ++z) at<L>(b.g0 + z * W) += at<L>(b.g + z * W) * at<L>(b.live);
 }
 
-template <int ZC, bool Perm>
+template <class L, int ZC, bool Perm>
 [[gnu::always_inline]] inline void run_batch(const Batch& b, bool counts) {
-  prepare<ZC, Perm>(b);
-  forward<ZC, Perm>(b);
+  prepare<L, ZC, Perm>(b);
+  forward<L, ZC, Perm>(b);
   if (!counts) return;
-  backward<ZC, Perm>(b);
-  count_transitions<ZC>(b);
-  add_gamma<ZC>(b);
+  backward<L, ZC, Perm>(b);
+  count_transitions<L, ZC>(b);
+  add_gamma<L, ZC>(b);
 }
 
-template <bool Perm>
+template <class L, bool Perm>
 [[gnu::always_inline]] inline void dispatch(const Batch& b, bool counts) {
   switch (b.Z) {
-    case 1: run_batch<1, Perm>(b, counts); break;
-    case 2: run_batch<2, Perm>(b, counts); break;
-    case 3: run_batch<3, Perm>(b, counts); break;
-    case 4: run_batch<4, Perm>(b, counts); break;
-    case 5: run_batch<5, Perm>(b, counts); break;
-    case 6: run_batch<6, Perm>(b, counts); break;
-    case 7: run_batch<7, Perm>(b, counts); break;
-    case 8: run_batch<8, Perm>(b, counts); break;
-    default: run_batch<0, Perm>(b, counts); break;
+    case 1: run_batch<L, 1, Perm>(b, counts); break;
+    case 2: run_batch<L, 2, Perm>(b, counts); break;
+    case 3: run_batch<L, 3, Perm>(b, counts); break;
+    case 4: run_batch<L, 4, Perm>(b, counts); break;
+    case 5: run_batch<L, 5, Perm>(b, counts); break;
+    case 6: run_batch<L, 6, Perm>(b, counts); break;
+    case 7: run_batch<L, 7, Perm>(b, counts); break;
+    case 8: run_batch<L, 8, Perm>(b, counts); break;
+    default: run_batch<L, 0, Perm>(b, counts); break;
   }
 }
 
-// The same source compiled three times: for the x86-64 baseline (SSE2), for AVX2 and for
-// AVX-512. No FMA is enabled and -ffp-contract=off applies to all three, and every lane's
-// arithmetic is written out element by element, so the builds differ only in vector width and in
-// how a selection is made (AVX-512 permutes a table when actions and observations fit in kPack).
-void kernel_baseline(const Batch& b, bool counts) { dispatch<false>(b, counts); }
+// The same source compiled three times: for the x86-64 baseline (SSE2, 2 doubles a register), for
+// AVX2 (4) and for AVX-512 (8). No FMA is enabled and -ffp-contract=off applies to all three, and
+// every lane's arithmetic is written out element by element, so the builds differ only in register
+// width and in how a selection is made (AVX-512 permutes a table when the actions and observations
+// fit in kPack slots).
+void kernel_baseline(const Batch& b, bool counts) { dispatch<Lanes<2>, false>(b, counts); }
 #if defined(__x86_64__) && defined(__GNUC__)
 #define DOBUDGET_KERNEL_X86 1
-__attribute__((target("avx2"))) void kernel_avx2(const Batch& b, bool counts) { dispatch<false>(b, counts); }
+__attribute__((target("avx2"))) void kernel_avx2(const Batch& b, bool counts) { dispatch<Lanes<4>, false>(b, counts); }
 __attribute__((target("avx512f,avx512vl,avx512dq,prefer-vector-width=512"))) void kernel_avx512(const Batch& b,
                                                                                                  bool counts) {
   if (b.A <= kPack && b.O <= kPack)
-    dispatch<true>(b, counts);
+    dispatch<Lanes<8>, true>(b, counts);
   else
-    dispatch<false>(b, counts);
+    dispatch<Lanes<8>, false>(b, counts);
 }
 #endif
 

@@ -84,7 +84,7 @@ class ForwardBackward {
   // [t][z'][l], scale and 1/scale [t][l], lane liveness [l], beta [z][l], lengths.
   std::vector<double> alpha_, e_, g_, ul_, scale_, inv_, live_, beta_;
   std::vector<int> len_;
-  std::vector<long long> ob_, ac_;  // o_t and a_t [t][l], -1 past the end
+  std::vector<double> ob_, ac_;  // o_t and a_t [t][l], -1 past the end
   // Per call, summed over batches, per lane: X [a][z][z'][l] = sum alpha_t(z) u_{t+1}(z'),
   // gamma by observation [o][z][l], by action [a][z][l], initial [z][l].
   std::vector<double> X_, gE_, gA_, g0_;
