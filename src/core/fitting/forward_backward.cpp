@@ -101,19 +101,36 @@ template <class L>
   return *reinterpret_cast<const L*>(p);
 }
 
+// Which parameter each lane needs, as a value (a_t or o_t; compared in the selection chain) and,
+// for the table permute, as integers.
+template <class L>
+struct Index {
+  L value;
+  typename L::I whole[L::C];
+};
+template <class L, bool Perm>
+[[gnu::always_inline]] inline Index<L> make_index(const L& value) {
+  Index<L> r;
+  r.value = value;
+  if constexpr (Perm)
+    for (int c = 0; c < L::C; ++c) r.whole[c] = __builtin_convertvector(value.v[c], typename L::I);
+  return r;
+}
+
 // Lane l gets table[idx_l * stride], i.e. the parameter of the lane's own action or observation:
-// a selection, exact whatever its implementation. Perm (AVX-512 only, N = 8): one variable permute
-// of the kPack-slot table `pack`, idx converted to integers in 0..kPack-1. Otherwise a chain of
-// selections among broadcast entries (idx outside 0..n-1 gives entry 0).
+// a selection, exact whatever its implementation. Perm (the n entries fit in one register of N
+// doubles: AVX-512 n <= 8, AVX2 n <= 4): one variable permute of the first N slots of the table
+// `pack` per register (an index past the end, -1, gives slot N - 1). Otherwise a chain of
+// selections among broadcast entries (an index outside 0..n-1 gives entry 0).
 template <class L, bool Perm>
 [[gnu::always_inline]] inline void pick(L& v, const double* pack, const double* table, std::ptrdiff_t stride, int n,
-                                        const L& idx) {
+                                        const Index<L>& idx) {
   if constexpr (Perm) {
-    static_assert(L::C == 1, "the table permute needs one register of 8 lanes");
-    v.v[0] = __builtin_shuffle(at<L>(pack).v[0], __builtin_convertvector(idx.v[0], typename L::I));
+    const typename L::D t = *reinterpret_cast<const typename L::D*>(pack);
+    for (int c = 0; c < L::C; ++c) v.v[c] = __builtin_shuffle(t, idx.whole[c]);
   } else {
     v = L::splat(table[0]);
-    for (int k = 1; k < n; ++k) v = select(idx == static_cast<double>(k), L::splat(table[k * stride]), v);
+    for (int k = 1; k < n; ++k) v = select(idx.value == static_cast<double>(k), L::splat(table[k * stride]), v);
   }
 }
 
@@ -132,25 +149,27 @@ template <class L, int ZC>
 // e_t(z) = qE(z, o_t) [x qA(z, a_t) on steps t < L of a lane when the decision rule is loaded];
 // 1 past a lane's end, so the numbers there stay finite (a step past the end selects action 0 in
 // the forward pass, and every count it could reach is left out by the selections below).
-template <class L, int ZC, bool Perm>
+template <class L, int ZC, bool PermT, bool PermE>
 [[gnu::always_inline]] inline void prepare(const Batch& b) {
   const int Z = ZC > 0 ? ZC : b.Z;
   const L one = L::splat(1.0);
   for (int t = 0; t <= b.H; ++t) {
     const L oi = at<L>(b.ob + t * W);
     const auto gone = oi < 0.0;
+    const Index<L> io = make_index<L, PermE>(oi);
     double* e = b.e + static_cast<std::ptrdiff_t>(t) * Z * W;
     for (int z = 0; z < Z; ++z) {
       L q;
-      pick<L, Perm>(q, b.pE + z * kPack, b.qE + z * b.O, 1, b.O, oi);
+      pick<L, PermE>(q, b.pE + z * kPack, b.qE + z * b.O, 1, b.O, io);
       at<L>(e + z * W) = select(gone, one, q);
     }
     if (b.decision && t < b.H) {
       const L ai = at<L>(b.ac + t * W);
       const auto idle = ai < 0.0;
+      const Index<L> ia = make_index<L, PermT>(ai);
       for (int z = 0; z < Z; ++z) {
         L q;
-        pick<L, Perm>(q, b.pA + z * kPack, b.qA + z * b.A, 1, b.A, ai);
+        pick<L, PermT>(q, b.pA + z * kPack, b.qA + z * b.A, 1, b.A, ia);
         at<L>(e + z * W) *= select(idle, one, q);
       }
     }
@@ -188,7 +207,7 @@ template <class L, int ZC, bool Perm>
     double* cur = b.alpha + (t + 1) * ZW;
     const double* e = b.e + (t + 1) * ZW;
     const L ai = at<L>(b.ac + t * W);
-    const L fi = select(ai < 0.0, zero, ai);  // past the end: action 0
+    const Index<L> fi = make_index<L, Perm>(select(ai < 0.0, zero, ai));  // past the end: action 0
     in_blocks<ZC>(Z, [&](auto block, int y0) __attribute__((always_inline)) {
       constexpr int B = decltype(block)::value;
       L s[B];
@@ -224,7 +243,7 @@ template <class L, int ZC, bool Perm>
     const L inv = at<L>(b.inv + (t + 1) * W);
     const L ai = at<L>(b.ac + t * W);
     const auto idle = ai < 0.0;
-    const L fi = select(idle, zero, ai);
+    const Index<L> fi = make_index<L, Perm>(select(idle, zero, ai));
     double* ul = b.ul + t * ZW;
     for (int y = 0; y < Z; ++y) at<L>(ul + y * W) = select(idle, zero, at<L>(e + y * W) * at<L>(beta + y * W) * inv);
     const L add = select(idle, one, zero);
@@ -326,9 +345,9 @@ template <class L, int ZC>
   for (int z = 0; z < Z; ++z) at<L>(b.g0 + z * W) += at<L>(b.g + z * W) * at<L>(b.live);
 }
 
-template <class L, int ZC, bool Perm>
+template <class L, int ZC, bool Perm, bool PermE>
 [[gnu::always_inline]] inline void run_batch(const Batch& b, bool counts) {
-  prepare<L, ZC, Perm>(b);
+  prepare<L, ZC, Perm, PermE>(b);
   forward<L, ZC, Perm>(b);
   if (!counts) return;
   backward<L, ZC, Perm>(b);
@@ -336,18 +355,18 @@ template <class L, int ZC, bool Perm>
   add_gamma<L, ZC>(b);
 }
 
-template <class L, bool Perm>
+template <class L, bool Perm, bool PermE>
 [[gnu::always_inline]] inline void dispatch(const Batch& b, bool counts) {
   switch (b.Z) {
-    case 1: run_batch<L, 1, Perm>(b, counts); break;
-    case 2: run_batch<L, 2, Perm>(b, counts); break;
-    case 3: run_batch<L, 3, Perm>(b, counts); break;
-    case 4: run_batch<L, 4, Perm>(b, counts); break;
-    case 5: run_batch<L, 5, Perm>(b, counts); break;
-    case 6: run_batch<L, 6, Perm>(b, counts); break;
-    case 7: run_batch<L, 7, Perm>(b, counts); break;
-    case 8: run_batch<L, 8, Perm>(b, counts); break;
-    default: run_batch<L, 0, Perm>(b, counts); break;
+    case 1: run_batch<L, 1, Perm, PermE>(b, counts); break;
+    case 2: run_batch<L, 2, Perm, PermE>(b, counts); break;
+    case 3: run_batch<L, 3, Perm, PermE>(b, counts); break;
+    case 4: run_batch<L, 4, Perm, PermE>(b, counts); break;
+    case 5: run_batch<L, 5, Perm, PermE>(b, counts); break;
+    case 6: run_batch<L, 6, Perm, PermE>(b, counts); break;
+    case 7: run_batch<L, 7, Perm, PermE>(b, counts); break;
+    case 8: run_batch<L, 8, Perm, PermE>(b, counts); break;
+    default: run_batch<L, 0, Perm, PermE>(b, counts); break;
   }
 }
 
@@ -356,16 +375,23 @@ template <class L, bool Perm>
 // every lane's arithmetic is written out element by element, so the builds differ only in register
 // width and in how a selection is made (AVX-512 permutes a table when the actions and observations
 // fit in kPack slots).
-void kernel_baseline(const Batch& b, bool counts) { dispatch<Lanes<2>, false>(b, counts); }
+void kernel_baseline(const Batch& b, bool counts) { dispatch<Lanes<2>, false, false>(b, counts); }
 #if defined(__x86_64__) && defined(__GNUC__)
 #define DOBUDGET_KERNEL_X86 1
-__attribute__((target("avx2"))) void kernel_avx2(const Batch& b, bool counts) { dispatch<Lanes<4>, false>(b, counts); }
+__attribute__((target("avx2"))) void kernel_avx2(const Batch& b, bool counts) {
+  if (b.A <= 4 && b.O <= 4)
+    dispatch<Lanes<4>, true, true>(b, counts);
+  else if (b.A <= 4)
+    dispatch<Lanes<4>, true, false>(b, counts);
+  else
+    dispatch<Lanes<4>, false, false>(b, counts);
+}
 __attribute__((target("avx512f,avx512vl,avx512dq,prefer-vector-width=512"))) void kernel_avx512(const Batch& b,
                                                                                                  bool counts) {
   if (b.A <= kPack && b.O <= kPack)
-    dispatch<Lanes<8>, true>(b, counts);
+    dispatch<Lanes<8>, true, true>(b, counts);
   else
-    dispatch<Lanes<8>, false>(b, counts);
+    dispatch<Lanes<8>, false, false>(b, counts);
 }
 #endif
 
@@ -444,17 +470,18 @@ void ForwardBackward::load(const Pomdp& m, const Matrix* decision) {
   std::fill(pT_.begin(), pT_.end(), 0.0);
   std::fill(pE_.begin(), pE_.end(), 0.0);
   std::fill(pA_.begin(), pA_.end(), 0.0);
-  if (A_ <= kPack && O_ <= kPack) {
+  if (A_ <= kPack) {
     for (int a = 0; a < A_; ++a)
       for (int z = 0; z < Z_; ++z)
         for (int y = 0; y < Z_; ++y)
           pT_[(static_cast<std::size_t>(z) * Z_ + y) * kPack + a] = qT_[(static_cast<std::size_t>(a) * Z_ + z) * Z_ + y];
-    for (int z = 0; z < Z_; ++z) {
-      for (int o = 0; o < O_; ++o) pE_[static_cast<std::size_t>(z) * kPack + o] = qE_[z * O_ + o];
-      if (has_decision_)
+    if (has_decision_)
+      for (int z = 0; z < Z_; ++z)
         for (int a = 0; a < A_; ++a) pA_[static_cast<std::size_t>(z) * kPack + a] = qA_[z * A_ + a];
-    }
   }
+  if (O_ <= kPack)
+    for (int z = 0; z < Z_; ++z)
+      for (int o = 0; o < O_; ++o) pE_[static_cast<std::size_t>(z) * kPack + o] = qE_[z * O_ + o];
 }
 
 double ForwardBackward::run(const DataView& view, bool counts) {
