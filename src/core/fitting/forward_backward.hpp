@@ -15,11 +15,13 @@
 //
 // Batched kernel (issue 11): kLanes episodes of one view run at once, one per vector lane
 // (structure of arrays, lane index fastest). Every lane performs exactly the sequence of IEEE
-// operations of one episode run alone: the parameters of each lane's action and observation are
-// selected (a table permute or blends: exact), sums start from +0 and run in a fixed order (z
-// ascending), and lanes past an episode's end are left out by the same selections. kLanes is fixed, not the vector width, so the order in
-// which counts are summed over lanes does not depend on the CPU: the SSE2, AVX2 and AVX-512
-// builds of the kernel give the same bits (tests/core/fitting/test_forward_backward.cpp).
+// operations of its episode run alone: each lane's parameters for its own a_t and o_t are selected
+// (a table permute, or a chain of selections: exact either way), every sum starts from +0 and runs
+// in a fixed order (z ascending; over t descending for the counts), and steps past an episode's
+// end are left out by the same selections. kLanes is fixed, not the register width, so the order
+// in which counts are summed over lanes does not depend on the CPU: the SSE2, AVX2 and AVX-512
+// builds give the bits of a plain scalar loop over the episodes (the test "every build of the
+// kernel performs the operations of one episode run alone", tests/core/fitting/test_forward_backward.cpp).
 #pragma once
 #include <vector>
 
