@@ -22,6 +22,7 @@
 
 #include "core/running/stop.hpp"
 #include "io/journal.hpp"
+#include "io/run_directory.hpp"
 
 namespace dobudget::mpi {
 namespace {
@@ -76,26 +77,16 @@ class DrawContextCache {
 // A RESULT message holds the units.journal records (io/journal.hpp) of one or more units, each
 // "<unit index> TAB <CRC-32> TAB <rows>" LF, each row a runs.csv line and ",<fit_seconds>" in the
 // shortest text that reads back to the same double, so a unit computed on another rank is recorded
-// exactly as if computed here, and a message garbled in transit is caught by the checksums.
-std::vector<std::pair<std::size_t, std::vector<RunRecord>>> decode_results(const std::string& text,
-                                                                           const std::vector<UnitId>& units, int rank) {
-  std::size_t intact = 0;
-  bool torn = false;
-  const std::string source = fmt::format("MPI result from rank {}", rank);
-  auto records = io::Journal::parse(text, &intact, &torn, source);
-  if (torn || records.empty() || intact != text.size())
-    throw std::runtime_error(source + ": not a sequence of intact unit records");
-  std::vector<std::pair<std::size_t, std::vector<RunRecord>>> out;
-  out.reserve(records.size());
-  for (auto& [index, rows] : records) {
-    if (index >= units.size()) throw std::runtime_error(fmt::format("{}: unit {} does not exist", source, index));
-    const UnitId& u = units[index];
-    for (const auto& r : rows)
-      if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
-        throw std::runtime_error(fmt::format("{}: the record of unit {} holds a row of another unit", source, index));
-    out.emplace_back(index, std::move(rows));
-  }
-  return out;
+// exactly as if computed here (the text is journaled as received: Journal::append_batch), and a
+// message garbled in transit is caught by the checksums (Journal::parse_batch) before any of it is
+// recorded. This is the check that the rows are the unit's.
+std::string unit_rows_problem(const std::vector<UnitId>& units, std::size_t index, const std::vector<RunRecord>& rows) {
+  if (index >= units.size()) return fmt::format("unit {} does not exist", index);
+  const UnitId& u = units[index];
+  for (const auto& r : rows)
+    if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
+      return "it holds a row of another unit";
+  return {};
 }
 
 // Guided self-scheduling (C. D. Polychronopoulos and D. J. Kuck, "Guided self-scheduling: a
@@ -203,11 +194,11 @@ Coordinator::Coordinator(const Session& session)
     : size_(session.size()), units_by_rank_(static_cast<std::size_t>(session.size()), 0) {}
 
 void Coordinator::release_workers() {
-  if (!workers_stopped_) (*this)(Study{}, {}, {}, 1, RunnerHooks{});
+  if (!workers_stopped_) (*this)(Study{}, {}, {}, 1, io::ExecutorHooks{});
 }
 
 void Coordinator::operator()(const Study& study, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo,
-                             int threads, const RunnerHooks& hooks) {
+                             int threads, const io::ExecutorHooks& hooks) {
   if (workers_stopped_) {  // a second call: the workers are gone, this process computes alone
     run_units(study, units, todo, threads, hooks);
     return;
@@ -256,6 +247,24 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
       if (!failure) failure = std::current_exception();
     }
   };
+  // A worker's RESULT, checked and decoded: journaled with one write (on_records), or unit by unit
+  // when the caller takes single units only.
+  auto deliver_batch = [&](int rank, io::Journal::Batch&& batch, double seconds) {
+    std::lock_guard lock(mutex);
+    const std::size_t n = batch.units.size();
+    units_by_rank_[static_cast<std::size_t>(rank)] += n;
+    unit_seconds += seconds;
+    units_timed += n;
+    try {
+      if (hooks.on_records) {
+        hooks.on_records(std::move(batch));
+      } else if (hooks.on_unit) {
+        for (auto& [index, rows] : batch.units) hooks.on_unit(index, std::move(rows));
+      }
+    } catch (...) {
+      if (!failure) failure = std::current_exception();
+    }
+  };
 
   // Rank 0's own compute threads.
   std::vector<std::thread> pool;
@@ -283,7 +292,13 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
     Clock::time_point last_result{};
   };
   std::vector<Peer> peers(static_cast<std::size_t>(size_));
-  std::map<std::size_t, std::pair<int, Clock::time_point>> assigned;  // remote units in flight: rank, ASSIGN time
+  // Remote units in flight, by unit index: the rank holding it (0: none) and when it was assigned.
+  // A vector, not a map: rank 0 touches it twice per unit, and units.size() entries are small.
+  struct Assignment {
+    int rank = 0;
+    Clock::time_point sent{};
+  };
+  std::vector<Assignment> assigned(todo.empty() ? 0 : units.size());
   int stopped = 0;
   bool cancel_sent = false;
   // Compute threads of the whole job, for the batch size: a rank not yet READY is counted with
@@ -304,7 +319,7 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
       MPI_Send(batch.data(), static_cast<int>(batch.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
       ++batches_;
       const auto now = Clock::now();
-      for (unsigned long long i : batch) assigned[static_cast<std::size_t>(i)] = {rank, now};
+      for (unsigned long long i : batch) assigned[static_cast<std::size_t>(i)] = {rank, now};  // i < units.size(): from todo
       p.in_flight += static_cast<int>(batch.size());
     }
     if (p.in_flight == 0) {
@@ -349,24 +364,28 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         std::string text(static_cast<std::size_t>(count), '\0');
         MPI_Recv(text.data(), count, MPI_CHAR, rank, result_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
         try {
-          auto results = decode_results(text, units, rank);
+          // Decoded once (CRC-32 and the rows' unit checked), then journaled as received.
+          io::Journal::Batch batch = io::Journal::parse_batch(
+              std::move(text), fmt::format("MPI result from rank {}", rank),
+              [&](std::size_t index, const std::vector<RunRecord>& rows) { return unit_rows_problem(units, index, rows); });
+          for (const auto& unit : batch.units)  // every unit first, so that nothing of a bad message is recorded
+            if (assigned[unit.first].rank != rank)
+              throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, unit.first));
           // A unit's time, for the poll cap only: from the later of its ASSIGN and this rank's
           // previous RESULT to now, shared by the units of the message and multiplied by the
           // threads that were busy on them (units of a batch wait in the worker's queue).
           const auto now = Clock::now();
           const int busy = std::max(1, std::min(p.slots, p.in_flight));
-          for (auto& [index, rows] : results) {
-            const auto sent = assigned.find(index);
-            if (sent == assigned.end() || sent->second.first != rank)
-              throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, index));
-            const auto since = std::max(sent->second.second, p.last_result);
-            const double seconds = std::chrono::duration<double>(now - since).count() * busy /
-                                   static_cast<double>(results.size());
-            assigned.erase(sent);
-            --p.in_flight;
-            deliver(rank, index, std::move(rows), seconds);
+          double seconds = 0.0;
+          for (const auto& unit : batch.units) {
+            Assignment& a = assigned[unit.first];
+            seconds += std::chrono::duration<double>(now - std::max(a.sent, p.last_result)).count() * busy /
+                       static_cast<double>(batch.units.size());
+            a.rank = 0;
           }
+          p.in_flight -= static_cast<int>(batch.units.size());
           p.last_result = now;
+          deliver_batch(rank, std::move(batch), seconds);
         } catch (...) {
           abort_job(0, what(std::current_exception()));  // a unit record lost: in-flight counts are wrong
         }
@@ -376,10 +395,9 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         std::vector<unsigned long long> cut(static_cast<std::size_t>(std::max(0, count)));
         MPI_Recv(cut.data(), count, MPI_UNSIGNED_LONG_LONG, rank, cancelled_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
         for (unsigned long long index : cut) {
-          const auto sent = assigned.find(static_cast<std::size_t>(index));
-          if (sent == assigned.end() || sent->second.first != rank)
+          if (index >= assigned.size() || assigned[static_cast<std::size_t>(index)].rank != rank)
             throw std::runtime_error(fmt::format("rank {} cancelled unit {}, which it was not assigned", rank, index));
-          assigned.erase(sent);
+          assigned[static_cast<std::size_t>(index)].rank = 0;
           --p.in_flight;
         }
         worker_cancelled = true;  // not recorded; no unit is handed out any more

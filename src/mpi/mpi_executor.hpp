@@ -74,6 +74,7 @@
 #include "core/running/runner.hpp"
 #include "core/running/settings.hpp"
 #include "core/running/unit.hpp"
+#include "io/run_directory.hpp"
 
 namespace dobudget::mpi {
 
@@ -110,7 +111,7 @@ class Coordinator {
  public:
   explicit Coordinator(const Session& session);
   void operator()(const Study& study, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo,
-                  int threads, const RunnerHooks& hooks);
+                  int threads, const io::ExecutorHooks& hooks);
   // Stops the workers if the executor has not run, so that they are not left waiting when
   // plan_study fails before it hands out work (a directory of another study, say). Idempotent.
   void release_workers();
