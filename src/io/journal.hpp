@@ -16,7 +16,8 @@
 // journal), of another format version or naming another study is refused. A record that parses
 // but fails the caller's check (rows that are not its unit's) or repeats a unit is refused too.
 //
-// Durability: append() hands the record to the operating system (fflush), which survives the
+// Durability: append() hands the record to the operating system (fflush), append_batch() a
+// whole batch of records with one write and one fflush; either survives the
 // process being killed (SIGKILL, a scheduler's pre-emption, an out-of-memory kill) but not a
 // crash of the machine itself; no fsync per unit (see bench/bench_journal.cpp for the costs).
 //

@@ -302,19 +302,14 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
   int stopped = 0;
   bool cancel_sent = false;
   // Compute threads of the whole job, for the batch size: a rank not yet READY is counted with
-  // rank 0's number of threads (the same --threads, or the same share of a node's cores).
-  auto slots_total = [&] {
-    std::size_t total = static_cast<std::size_t>(local_threads);
-    for (int r = 1; r < size_; ++r) {
-      const int s = peers[static_cast<std::size_t>(r)].slots;
-      total += static_cast<std::size_t>(s > 0 ? s : std::max(1, threads));
-    }
-    return total;
-  };
+  // rank 0's number of threads (the same --threads, or the same share of a node's cores). Kept as
+  // a running total (corrected at each READY), not summed over the ranks for every batch.
+  const std::size_t assumed_slots = static_cast<std::size_t>(std::max(1, threads));
+  std::size_t slots_total = static_cast<std::size_t>(local_threads) + static_cast<std::size_t>(size_ - 1) * assumed_slots;
   auto refill = [&](int rank) {
     Peer& p = peers[static_cast<std::size_t>(rank)];
     while (p.in_flight < p.slots) {  // one batch per free slot
-      const std::vector<unsigned long long> batch = take_batch(slots_total());
+      const std::vector<unsigned long long> batch = take_batch(slots_total);
       if (batch.empty()) break;
       MPI_Send(batch.data(), static_cast<int>(batch.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
       ++batches_;
@@ -356,7 +351,9 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
       if (status.MPI_TAG == ready_tag) {
         int slots = 0;
         MPI_Recv(&slots, 1, MPI_INT, rank, ready_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+        if (p.slots > 0) throw std::runtime_error(fmt::format("rank {} sent READY twice", rank));
         p.slots = std::max(1, slots);
+        slots_total = slots_total - assumed_slots + static_cast<std::size_t>(p.slots);
       } else if (status.MPI_TAG == result_tag) {
         ++result_messages_;
         int count = 0;
