@@ -101,6 +101,33 @@ std::size_t batch_size(std::size_t remaining, std::size_t slots_total) {
   return std::max<std::size_t>(1, (remaining + d - 1) / d);
 }
 
+// An ASSIGN names its batch as runs of consecutive unit indices, (first, count) pairs: a batch is
+// a slice of `todo`, which is consecutive but where a resumed directory or a shard leaves gaps, so
+// it is mostly one pair, 16 bytes, whatever its size. A short message goes out eagerly; a list of
+// every index (5 KB for 625 units) is above OpenMPI's eager limit for shared memory (4 KB), and
+// its MPI_Send would wait for the worker to take it.
+std::vector<unsigned long long> as_runs(const std::vector<unsigned long long>& batch) {
+  std::vector<unsigned long long> runs;
+  for (unsigned long long index : batch) {
+    if (!runs.empty() && runs[runs.size() - 2] + runs.back() == index) ++runs.back();
+    else runs.insert(runs.end(), {index, 1});
+  }
+  return runs;
+}
+
+// The indices of an ASSIGN's runs; an empty vector when the runs are malformed (an odd count, a
+// run of no unit, or one reaching beyond `units`).
+std::vector<std::size_t> from_runs(const std::vector<unsigned long long>& runs, std::size_t units) {
+  std::vector<std::size_t> batch;
+  if (runs.size() % 2 != 0) return {};
+  for (std::size_t k = 0; k < runs.size(); k += 2) {
+    const unsigned long long first = runs[k], count = runs[k + 1];
+    if (count == 0 || first >= units || count > units - first) return {};
+    for (unsigned long long i = first; i < first + count; ++i) batch.push_back(static_cast<std::size_t>(i));
+  }
+  return batch;
+}
+
 // Units assigned to a worker but not started when a stop comes are cut short at once: moved from
 // the queue to the list reported as CANCELLED.
 void queue_cancelled(std::deque<std::size_t>& queue, std::deque<unsigned long long>& cut) {
@@ -311,7 +338,8 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
     while (p.in_flight < p.slots) {  // one batch per free slot
       const std::vector<unsigned long long> batch = take_batch(slots_total);
       if (batch.empty()) break;
-      MPI_Send(batch.data(), static_cast<int>(batch.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
+      const std::vector<unsigned long long> runs = as_runs(batch);
+      MPI_Send(runs.data(), static_cast<int>(runs.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
       ++batches_;
       const auto now = Clock::now();
       for (unsigned long long i : batch) assigned[static_cast<std::size_t>(i)] = {rank, now};  // i < units.size(): from todo
@@ -506,15 +534,16 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           if (status.MPI_TAG == assign_tag) {
             int count = 0;
             MPI_Get_count(&status, MPI_UNSIGNED_LONG_LONG, &count);
-            std::vector<unsigned long long> batch(static_cast<std::size_t>(std::max(0, count)));
-            MPI_Recv(batch.data(), count, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
-            if (batch.empty()) abort_job(rank, "rank 0 assigned an empty batch");
-            for (unsigned long long index : batch)
-              if (index >= units.size())
-                abort_job(rank, fmt::format("rank 0 assigned unit {}, which does not exist", index));
+            std::vector<unsigned long long> runs(static_cast<std::size_t>(std::max(0, count)));
+            MPI_Recv(runs.data(), count, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            const std::vector<std::size_t> batch = from_runs(runs, units.size());
+            if (batch.empty())
+              abort_job(rank, fmt::format("rank 0 assigned a batch that is empty or names units that do not exist "
+                                          "(the study has {})",
+                                          units.size()));
             {
               std::lock_guard lock(mutex);
-              for (unsigned long long index : batch) queue.push_back(static_cast<std::size_t>(index));
+              for (std::size_t index : batch) queue.push_back(index);
             }
             held += static_cast<int>(batch.size());
             work_ready.notify_all();

@@ -33,7 +33,8 @@
 //   tag 1 READY   worker -> 0  one int: the worker's number of compute threads (its slots); sent
 //                              once, when the worker has loaded the study.
 //   tag 2 ASSIGN  0 -> worker  unsigned long longs: a batch, the indices of units (into
-//                              enumerate_units) to compute, in canonical order; rank 0 sends one
+//                              enumerate_units) to compute, in canonical order, as (first index,
+//                              count) pairs of consecutive runs (mostly one pair); rank 0 sends one
 //                              batch per free slot, i.e. while fewer units than `slots` are in flight.
 //   tag 3 RESULT  worker -> 0  chars: the units.journal records (io/journal.hpp: index, CRC-32,
 //                              rows as runs.csv lines with ",<fit_seconds>"; shortest round-trip
