@@ -152,6 +152,12 @@ class Backoff {
   Micros wait_{50};
 };
 
+// How long a worker holds the records of finished units while it still has work (it sends them
+// sooner when rank 0 would hand it more, or on a stop): a killed job (SIGKILL: SIGTERM still sends
+// them) loses at most this much finished work per worker thread besides the units running, and a
+// worker sends at most about 1 / result_flush_interval RESULTs a second that hand out nothing.
+constexpr std::chrono::milliseconds result_flush_interval{500};
+
 // Rank 0's cap: 1% of the mean unit time, within [1 ms, 10 ms]. Every wake-up costs the core it
 // shares with a compute thread (measured: about 50 us in a virtual machine here, so polling every
 // 200 us slowed units by 20%), while a longer cap delays a worker's next unit by half the cap on
@@ -497,8 +503,11 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
 
     Backoff backoff;
     bool stop = false;
-    int held = 0;  // units assigned to this rank and not yet sent back
-    try {          // inside the pool's scope: abort the job before joinable threads would be destroyed
+    int held = 0;  // units assigned to this rank and not yet sent back (pending ones included)
+    std::string pending;  // records of finished units not yet sent
+    int pending_units = 0;
+    Clock::time_point pending_since{};  // when the oldest of them was taken from the outbox
+    try {  // inside the pool's scope: abort the job before joinable threads would be destroyed
       while (!stop) {
         std::deque<std::string> finished;
         std::deque<unsigned long long> abandoned;
@@ -509,18 +518,29 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           abandoned.swap(cut);
           error = failure;
         }
-        // Every unit finished since the last message goes in one RESULT, every unit cut short in one
-        // CANCELLED: rank 0 pays per message, and short units finish faster than it is polled.
-        if (!finished.empty()) {
-          std::string text;
-          for (const auto& record : finished) text += record;
-          MPI_Send(text.data(), static_cast<int>(text.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD);
+        const auto now = Clock::now();
+        for (const auto& record : finished) {
+          if (pending_units++ == 0) pending_since = now;
+          pending += record;
+        }
+        // Finished units go in one RESULT, cut ones in one CANCELLED: rank 0 pays per message. A
+        // RESULT is sent at once when rank 0 would hand out work on it (after it, this rank would
+        // hold fewer units than slots: rank 0 refills only then), when a stop or a failure is under
+        // way, and otherwise once the oldest pending unit has waited result_flush_interval, so
+        // that units of a long batch are not sent one message each.
+        const bool needs_work = held - pending_units < slots;
+        const bool stopping = error || !abandoned.empty() || cut_short.requested();
+        if (pending_units > 0 && (needs_work || stopping || now - pending_since >= result_flush_interval)) {
+          MPI_Send(pending.data(), static_cast<int>(pending.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD);
+          held -= pending_units;
+          pending.clear();
+          pending_units = 0;
         }
         if (!abandoned.empty()) {
           const std::vector<unsigned long long> list(abandoned.begin(), abandoned.end());
           MPI_Send(list.data(), static_cast<int>(list.size()), MPI_UNSIGNED_LONG_LONG, 0, cancelled_tag, MPI_COMM_WORLD);
         }
-        held -= static_cast<int>(finished.size() + abandoned.size());
+        held -= static_cast<int>(abandoned.size());
         if (error)
           abort_job(rank, what(error) +
                               " (the units finished so far are in units.journal: run the same command again "
@@ -565,13 +585,19 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
         if (!finished.empty() || !abandoned.empty()) backoff.reset();
         // Wake for a finished unit at once. Holding at least a unit per slot only CANCEL can come
         // (rank 0 writes to a worker only to fill a free slot, to stop one holding nothing, or to
-        // cancel): look for it every 100 ms; otherwise a reply is due soon: poll for it.
+        // cancel): look for it every 100 ms, or when pending units are due; otherwise a reply is
+        // due soon: poll for it.
         const auto done = [&] { return !outbox.empty() || !cut.empty() || failure != nullptr; };
         std::unique_lock lock(mutex);
-        if (held >= slots)
-          result_ready.wait_for(lock, Micros(100000), done);
-        else
+        if (held >= slots) {
+          auto wait = Micros(100000);
+          if (pending_units > 0)
+            wait = std::clamp(std::chrono::duration_cast<Micros>(pending_since + result_flush_interval - Clock::now()),
+                              Micros(0), wait);
+          result_ready.wait_for(lock, wait, done);
+        } else {
           result_ready.wait_for(lock, backoff.next(Micros(1000)), done);
+        }
       }
     } catch (const std::exception& e) {
       abort_job(rank, e.what());

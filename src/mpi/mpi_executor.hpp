@@ -39,7 +39,11 @@
 //   tag 3 RESULT  worker -> 0  chars: the units.journal records (io/journal.hpp: index, CRC-32,
 //                              rows as runs.csv lines with ",<fit_seconds>"; shortest round-trip
 //                              numbers, so the rows read back exactly) of every unit the worker
-//                              finished since its last message; rank 0 checks and decodes them once
+//                              finished since its last message. Sent at once when rank 0 would hand
+//                              out work on it (the worker would then hold fewer units than slots) or
+//                              on a stop or failure, else when the oldest has waited 0.5 s (a killed
+//                              job loses at most that much finished work per worker thread besides
+//                              the units running; SIGTERM loses none); rank 0 checks and decodes them once
 //                              (io::Journal::parse_batch: CRC-32, rows of the unit, assigned to this
 //                              rank), appends the text as received with one write and one fflush
 //                              (ExecutorHooks::on_records, Journal::append_batch) and refills the
