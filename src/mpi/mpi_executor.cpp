@@ -104,8 +104,9 @@ std::size_t batch_size(std::size_t remaining, std::size_t slots_total) {
 // An ASSIGN names its batch as runs of consecutive unit indices, (first, count) pairs: a batch is
 // a slice of `todo`, which is consecutive but where a resumed directory or a shard leaves gaps, so
 // it is mostly one pair, 16 bytes, whatever its size. A short message goes out eagerly; a list of
-// every index (5 KB for 625 units) is above OpenMPI's eager limit for shared memory (4 KB), and
-// its MPI_Send would wait for the worker to take it.
+// every index (5 KB for 625 units) is above OpenMPI's eager limit for shared memory (4,096 bytes in
+// OpenMPI 4.1.4: btl_vader_eager_limit, `ompi_info --param btl vader --level 9`), and its MPI_Send
+// would wait for the worker to take it.
 std::vector<unsigned long long> as_runs(const std::vector<unsigned long long>& batch) {
   std::vector<unsigned long long> runs;
   for (unsigned long long index : batch) {
