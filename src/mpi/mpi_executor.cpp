@@ -401,7 +401,7 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
               std::move(text), fmt::format("MPI result from rank {}", rank),
               [&](std::size_t index, const std::vector<RunRecord>& rows) { return unit_rows_problem(units, index, rows); });
           for (const auto& unit : batch.units)  // every unit first, so that nothing of a bad message is recorded
-            if (assigned[unit.first].rank != rank)
+            if (unit.first >= assigned.size() || assigned[unit.first].rank != rank)
               throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, unit.first));
           // A unit's time, for the poll cap only: from the later of its ASSIGN and this rank's
           // previous RESULT to now, shared by the units of the message and multiplied by the
