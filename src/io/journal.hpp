@@ -78,9 +78,11 @@ class Journal {
 
   // Checks and decodes `text`, which must be one or more whole records and nothing else: each
   // intact (its CRC-32 matches, it ends with LF), parsing, passing `check` (when given) and of a
-  // unit not already in the batch. Throws InputError naming `source` and the 1-based record
-  // ("MPI result from rank 3:2: unit 17: ..."; the unit as its index field reads when the record
-  // is damaged) on the first that is not; it writes nothing. Decodes every record exactly once.
+  // unit not already in the batch. Throws InputError naming `source` and the 1-based record, on
+  // the first that is not: "MPI result from rank 3:2: unit '17': damaged record (checksum
+  // mismatch); nothing of this batch is recorded" (a damaged record's unit as its index field
+  // reads), "...: unit 17: the record does not belong to it: ...". It writes nothing. Decodes every
+  // record exactly once.
   static Batch parse_batch(std::string text, const std::string& source, const RecordCheck& check = {});
 
   // Appends a whole batch with one write and one flush to the operating system: its text

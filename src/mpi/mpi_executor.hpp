@@ -20,8 +20,9 @@
 // (scenario, draw) it meets, shares it between its threads and releases it when the units handed
 // out (in canonical order) have moved past its draw and its last unit here has finished. Why rank 0 computes: with a
 // dedicated coordinator, 2 ranks would give 1 worker (at most 50% efficiency from 1 to 2 ranks);
-// serving costs rank 0's main thread about 2 us of CPU per unit (DEVELOPERS.md, "MPI hand-out
-// rate": over 500,000 units per CPU second, enough for some 13,000 threads of 25 ms units). A RESULT
+// serving costs rank 0's main thread about 2 us of CPU per unit and 10 us per message
+// (DEVELOPERS.md, "MPI hand-out rate": 280,000-640,000 units per CPU second, enough for 7,000 to
+// 16,000 threads of 25 ms units, the fewer when RESULTs hold fewer units). A RESULT
 // that does not decode ends the job with MPI_Abort (how many units it held is unknown), before any
 // of its units is recorded.
 //
