@@ -124,7 +124,7 @@ void time_plan(const char* label, const char* yaml, const fs::path& dir, int thr
   std::vector<double> per_unit_hook;
   opt.on_progress = [](const io::Progress&) {};  // as plan's progress callback, minus the printing
   opt.executor = [&](const Study& st, const std::vector<UnitId>& all, const std::vector<std::size_t>& todo, int th,
-                     const RunnerHooks& hooks) {
+                     const io::ExecutorHooks& hooks) {
     RunnerHooks timed = hooks;
     timed.on_unit = [&](std::size_t index, std::vector<RunRecord>&& rows) {
       const auto h0 = Clock::now();

@@ -307,7 +307,7 @@ int plan_on_ranks(const PlanArgs& args, const mpi::Session& session) {
     if (!agreed.all_ok) throw std::runtime_error("another MPI rank could not load the study (its error is shown above)");
     mpi::Coordinator coordinator(session);
     opt.executor = [&coordinator](const Study& s, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo,
-                                  int threads, const RunnerHooks& hooks) { coordinator(s, units, todo, threads, hooks); };
+                                  int threads, const io::ExecutorHooks& hooks) { coordinator(s, units, todo, threads, hooks); };
     try {
       const int code = plan_and_report(*study, resolved, opt, args.quiet, session.size());
       coordinator.release_workers();

@@ -7,6 +7,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <cerrno>
 #include <charconv>
 #include <stdexcept>
@@ -15,6 +16,7 @@
 #include "io/input_error.hpp"
 #include "io/regular_file.hpp"
 #include "io/runs_table.hpp"
+#include "io/text_escape.hpp"
 
 namespace dobudget::io {
 namespace {
@@ -43,25 +45,39 @@ std::string payload(const std::vector<RunRecord>& rows) {
   return p;
 }
 
-// The rows of a payload; throws (InputError or std::runtime_error) on anything malformed.
-std::vector<RunRecord> parse_payload(const std::string& p) {
+// The rows of a payload; throws (InputError or std::runtime_error) on anything malformed. Views
+// into the text, no copies (rank 0 of an MPI run decodes every row a worker sends).
+std::vector<RunRecord> parse_payload(std::string_view p) {
   std::vector<RunRecord> rows;
+  rows.reserve(static_cast<std::size_t>(std::count(p.begin(), p.end(), ';')) + 1);
   std::size_t start = 0;
   while (start <= p.size()) {
     std::size_t end = p.find(';', start);
-    if (end == std::string::npos) end = p.size();
-    const std::string row = p.substr(start, end - start);
+    if (end == std::string_view::npos) end = p.size();
+    const std::string_view row = p.substr(start, end - start);
     const std::size_t comma = row.rfind(',');
-    if (comma == std::string::npos) throw std::runtime_error("malformed row");
+    if (comma == std::string_view::npos) throw std::runtime_error("malformed row");
     RunRecord r = parse_runs_line(row.substr(0, comma));
     const char* first = row.data() + comma + 1;
     const char* last = row.data() + row.size();
     const auto parsed = std::from_chars(first, last, r.fit_seconds);
     if (first == last || parsed.ec != std::errc() || parsed.ptr != last) throw std::runtime_error("malformed fit_seconds");
-    rows.push_back(r);
+    rows.push_back(std::move(r));
     start = end + 1;
   }
   return rows;
+}
+
+// The checksum field: exactly 8 lowercase hex digits, as record() writes it ("{:08x}").
+bool crc_field_matches(std::string_view field, std::uint32_t crc) {
+  if (field.size() != 8) return false;
+  std::uint32_t x = 0;
+  for (char c : field) {
+    const int d = c >= '0' && c <= '9' ? c - '0' : c >= 'a' && c <= 'f' ? c - 'a' + 10 : -1;
+    if (d < 0) return false;
+    x = x << 4 | static_cast<std::uint32_t>(d);
+  }
+  return x == crc;
 }
 
 // The unit index field: decimal digits only.
@@ -71,6 +87,20 @@ std::size_t parse_index(std::string_view s) {
   if (s.empty() || s[0] == '-' || ec != std::errc() || end != s.data() + s.size())
     throw std::runtime_error("malformed unit index");
   return i;
+}
+
+// One record without its LF: "<index> TAB <CRC-32> TAB <payload>". Sets *index and returns the
+// rows; throws (InputError or std::runtime_error) when it is damaged. The CRC is checked first, so
+// nothing of a damaged record is decoded.
+std::vector<RunRecord> decode_record(std::string_view rec, std::size_t* index) {
+  const std::size_t t1 = rec.find('\t');
+  const std::size_t t2 = t1 == std::string_view::npos ? t1 : rec.find('\t', t1 + 1);
+  if (t1 == std::string_view::npos || t2 == std::string_view::npos) throw std::runtime_error("missing fields");
+  const std::string_view body = rec.substr(t2 + 1);
+  if (!crc_field_matches(rec.substr(t1 + 1, t2 - t1 - 1), record_crc(rec.substr(0, t1), body)))
+    throw std::runtime_error("checksum mismatch");
+  *index = parse_index(rec.substr(0, t1));
+  return parse_payload(body);
 }
 
 // What a parse error says about the record: "checksum mismatch", "model_kl: must be at least 0, ...".
@@ -122,15 +152,7 @@ Journal::Units Journal::parse(const std::string& text, std::size_t* intact_bytes
     std::vector<RunRecord> rows;
     try {
       if (nl == std::string::npos) throw std::runtime_error("no end of line");
-      const std::string_view rec(text.data() + pos, nl - pos);
-      const std::size_t t1 = rec.find('\t');
-      const std::size_t t2 = t1 == std::string_view::npos ? t1 : rec.find('\t', t1 + 1);
-      if (t1 == std::string_view::npos || t2 == std::string_view::npos) throw std::runtime_error("missing fields");
-      const std::string body(rec.substr(t2 + 1));
-      if (fmt::format("{:08x}", record_crc(rec.substr(0, t1), body)) != rec.substr(t1 + 1, t2 - t1 - 1))
-        throw std::runtime_error("checksum mismatch");
-      index = parse_index(rec.substr(0, t1));
-      rows = parse_payload(body);
+      rows = decode_record(std::string_view(text.data() + pos, nl - pos), &index);
     } catch (const std::exception& e) {
       if (!last)
         throw InputError(source, line, "",
@@ -285,11 +307,71 @@ bool Journal::in_use(const std::filesystem::path& file) {
   return busy;
 }
 
-void Journal::append(std::size_t unit_index, const std::vector<RunRecord>& rows) {
-  const std::string rec = record(unit_index, rows);
-  if (std::fwrite(rec.data(), 1, rec.size(), file_) != rec.size() || std::fflush(file_) != 0)
+namespace {
+
+// One write of `text` and one flush to the operating system.
+void write_flushed(std::FILE* file, std::string_view text) {
+  if (std::fwrite(text.data(), 1, text.size(), file) != text.size() || std::fflush(file) != 0)
     throw std::runtime_error("cannot append to units.journal");
+}
+
+}  // namespace
+
+void Journal::append(std::size_t unit_index, const std::vector<RunRecord>& rows) {
+  write_flushed(file_, record(unit_index, rows));
   units_[unit_index] = rows;
+}
+
+void Journal::append(std::size_t unit_index, std::vector<RunRecord>&& rows) {
+  write_flushed(file_, record(unit_index, rows));
+  units_[unit_index] = std::move(rows);
+}
+
+Journal::Batch Journal::parse_batch(std::string text, const std::string& source, const RecordCheck& check) {
+  Batch batch;
+  std::map<std::size_t, int> line_of;  // unit index -> the record of the batch that holds it
+  std::size_t pos = 0;
+  int line = 0;
+  if (text.empty()) throw InputError(source, 0, "", "holds no unit record");
+  while (pos < text.size()) {
+    ++line;
+    const std::size_t nl = text.find('\n', pos);
+    const std::string_view rec(text.data() + pos, (nl == std::string::npos ? text.size() : nl) - pos);
+    std::size_t index = 0;
+    std::vector<RunRecord> rows;
+    try {
+      if (nl == std::string::npos) throw std::runtime_error("no end of line");
+      rows = decode_record(rec, &index);
+    } catch (const std::exception& e) {
+      // The unit as the damaged record's index field reads (it may be the damaged part).
+      const std::string_view field = rec.substr(0, std::min(rec.find('\t'), std::size_t{20}));
+      throw InputError(source, line, "",
+                       fmt::format("unit '{}': damaged record ({}); nothing of this batch is recorded",
+                                   printable_line(field), reason(e)));
+    }
+    if (const auto seen = line_of.find(index); seen != line_of.end())
+      throw InputError(source, line, "",
+                       fmt::format("unit {}: recorded twice in one batch (records {} and {}); nothing of this batch "
+                                   "is recorded",
+                                   index, seen->second, line));
+    if (check) {
+      const std::string problem = check(index, rows);
+      if (!problem.empty())
+        throw InputError(source, line, "",
+                         fmt::format("unit {}: the record does not belong to it: {}; nothing of this batch is recorded",
+                                     index, problem));
+    }
+    line_of.emplace(index, line);
+    batch.units.emplace_back(index, std::move(rows));
+    pos = nl + 1;
+  }
+  batch.text = std::move(text);
+  return batch;
+}
+
+void Journal::append_batch(Batch&& batch) {
+  write_flushed(file_, batch.text);
+  for (auto& [index, rows] : batch.units) units_[index] = std::move(rows);
 }
 
 }  // namespace dobudget::io

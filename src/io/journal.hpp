@@ -16,7 +16,8 @@
 // journal), of another format version or naming another study is refused. A record that parses
 // but fails the caller's check (rows that are not its unit's) or repeats a unit is refused too.
 //
-// Durability: append() hands the record to the operating system (fflush), which survives the
+// Durability: append() hands the record to the operating system (fflush), append_batch() a
+// whole batch of records with one write and one fflush; either survives the
 // process being killed (SIGKILL, a scheduler's pre-emption, an out-of-memory kill) but not a
 // crash of the machine itself; no fsync per unit (see bench/bench_journal.cpp for the costs).
 //
@@ -31,6 +32,7 @@
 #include <functional>
 #include <map>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "core/running/run_record.hpp"
@@ -65,6 +67,29 @@ class Journal {
 
   // Appends one finished unit and flushes it to the operating system.
   void append(std::size_t unit_index, const std::vector<RunRecord>& rows);
+  void append(std::size_t unit_index, std::vector<RunRecord>&& rows);  // the same, keeping `rows` without a copy
+
+  // Units finished by another process that arrive as records already encoded by record() (an MPI
+  // worker's RESULT message): the text as received, checked and decoded once by parse_batch.
+  struct Batch {
+    std::string text;  // whole records, each byte for byte as record() writes it
+    std::vector<std::pair<std::size_t, std::vector<RunRecord>>> units;  // in the order of `text`
+  };
+
+  // Checks and decodes `text`, which must be one or more whole records and nothing else: each
+  // intact (its CRC-32 matches, it ends with LF), parsing, passing `check` (when given) and of a
+  // unit not already in the batch. Throws InputError naming `source` and the 1-based record, on
+  // the first that is not: "MPI result from rank 3:2: unit '17': damaged record (checksum
+  // mismatch); nothing of this batch is recorded" (a damaged record's unit as its index field
+  // reads), "...: unit 17: the record does not belong to it: ...". It writes nothing. Decodes every
+  // record exactly once.
+  static Batch parse_batch(std::string text, const std::string& source, const RecordCheck& check = {});
+
+  // Appends a whole batch with one write and one flush to the operating system: its text
+  // verbatim, so the journal holds the same bytes as append() of each unit in turn. Then keeps its
+  // rows (moved, not copied). A crash mid-write can tear only the batch's last record written,
+  // which is dropped on resume like any torn tail. Throws std::runtime_error when the write fails.
+  void append_batch(Batch&& batch);
 
   // The header line (with its LF) of a journal of the study with hash `study_hash`.
   static std::string header(const std::string& study_hash);

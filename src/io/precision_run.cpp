@@ -138,7 +138,7 @@ PrecisionOutcome plan_precision_study(const Study& range, const std::string& res
     ro.out = opt.out / fmt::format("round-{}", design.round);
     ro.before_computing = nullptr;
     ro.executor = [&](const Study& study, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo,
-                      int threads, const RunnerHooks& hooks) {
+                      int threads, const ExecutorHooks& hooks) {
       std::vector<std::size_t> old_todo, new_todo;
       for (std::size_t i : todo) (work.existed[i] ? old_todo : new_todo).push_back(i);
       const auto spliced = [&](std::size_t i, const std::vector<RunRecord>& fresh) {

@@ -107,13 +107,21 @@ PlanOutcome plan_study(const Study& study, const std::string& resolved, const Pl
   }
   if (opt.before_computing) opt.before_computing(units, todo);
   Progress progress{out.units_resumed, mine.size(), 0, 0.0};
-  RunnerHooks hooks;
-  hooks.on_unit = [&](std::size_t index, std::vector<RunRecord>&& rows) {
-    journal.append(index, rows);
-    ++progress.done;
-    ++progress.computed;
+  ExecutorHooks hooks;
+  const auto count_done = [&](std::size_t n) {
+    progress.done += n;
+    progress.computed += n;
     progress.elapsed_seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
     if (opt.on_progress) opt.on_progress(progress);
+  };
+  hooks.on_unit = [&](std::size_t index, std::vector<RunRecord>&& rows) {
+    journal.append(index, std::move(rows));  // the journal keeps the rows: moved, not copied
+    count_done(1);
+  };
+  hooks.on_records = [&](Journal::Batch&& batch) {
+    const std::size_t n = batch.units.size();
+    journal.append_batch(std::move(batch));
+    count_done(n);
   };
   hooks.stop_requested = opt.stop_requested;
   if (opt.executor) opt.executor(study, units, todo, opt.threads, hooks);

@@ -15,6 +15,7 @@
 #include "core/running/runner.hpp"
 #include "core/running/settings.hpp"
 #include "core/running/unit.hpp"
+#include "io/journal.hpp"
 
 namespace dobudget::io {
 
@@ -34,6 +35,14 @@ struct Progress {
   double elapsed_seconds = 0.0;
 };
 
+// What plan_study gives its executor: on_unit and stop_requested (RunnerHooks) and on_records,
+// for units computed by another process that arrive as units.journal records (an MPI worker's
+// RESULT, checked and decoded by Journal::parse_batch): journals them with one write and one flush
+// (Journal::append_batch) and counts them done. Serialised with on_unit (never two at once).
+struct ExecutorHooks : RunnerHooks {
+  std::function<void(Journal::Batch&&)> on_records;
+};
+
 struct PlanOptions {
   std::filesystem::path out;
   int threads = 1;
@@ -48,7 +57,7 @@ struct PlanOptions {
   // Runs the units `todo` and reports each finished one through the hooks. Default: run_units
   // (threads of this process); an MPI build supplies one that also hands units to other ranks.
   std::function<void(const Study&, const std::vector<UnitId>&, const std::vector<std::size_t>& todo, int threads,
-                     const RunnerHooks&)>
+                     const ExecutorHooks&)>
       executor;
 };
 

@@ -8,6 +8,7 @@
 #include <limits>
 #include <optional>
 #include <stdexcept>
+#include <string_view>
 
 #include "io/atomic_file.hpp"
 #include "io/csv.hpp"
@@ -23,23 +24,24 @@ constexpr std::array<const char*, 14> runs_columns{"scenario", "environment", "r
                                                    "loglik",   "iterations",  "converged", "note",
                                                    "starts",   "confirmed"};
 
-std::vector<std::string> split(const std::string& line) {
-  std::vector<std::string> cells;
-  std::string cell;
-  for (char c : line) {
-    if (c == ',') {
-      cells.push_back(cell);
-      cell.clear();
-    } else {
-      cell += c;
-    }
+// The cells of a line, as views into it (no copies: rank 0 of an MPI run decodes every row a
+// worker sends, DEVELOPERS.md "MPI hand-out rate").
+std::vector<std::string_view> split(std::string_view line) {
+  std::vector<std::string_view> cells;
+  cells.reserve(runs_columns.size());
+  std::size_t start = 0;
+  while (true) {
+    const std::size_t comma = line.find(',', start);
+    if (comma == std::string_view::npos) break;
+    cells.push_back(line.substr(start, comma - start));
+    start = comma + 1;
   }
-  cells.push_back(cell);
+  cells.push_back(line.substr(start));
   return cells;
 }
 
 // A cell as the user sees it in a message: quoted, at most 40 characters, control characters escaped.
-std::string shown(const std::string& s) {
+std::string shown(std::string_view s) {
   std::string out;
   for (char c : s.substr(0, 40)) {
     const auto u = static_cast<unsigned char>(c);
@@ -51,7 +53,7 @@ std::string shown(const std::string& s) {
 // Reads the cells of one line; every error names the source, the line and the column.
 class CellReader {
  public:
-  CellReader(const std::vector<std::string>& cells, const std::string& source, int line)
+  CellReader(const std::vector<std::string_view>& cells, const std::string& source, int line)
       : cells_(cells), source_(source), line_(line) {}
 
   [[noreturn]] void fail(std::size_t column, const std::string& message) const {
@@ -60,7 +62,7 @@ class CellReader {
 
   // A non-negative integer in decimal digits (no sign, no spaces).
   int count(std::size_t column) const {
-    const std::string& s = cells_[column];
+    const std::string_view s = cells_[column];
     int x = 0;
     const auto [end, ec] = std::from_chars(s.data(), s.data() + s.size(), x);
     if (s.empty() || s[0] == '-' || ec != std::errc() || end != s.data() + s.size())
@@ -70,7 +72,7 @@ class CellReader {
 
   // Exact text to double (std::from_chars: no locale, and subnormals read back, unlike std::stod).
   double number(std::size_t column) const {
-    const std::string& s = cells_[column];
+    const std::string_view s = cells_[column];
     double x = 0.0;
     if (s == "inf") return std::numeric_limits<double>::infinity();
     if (s == "-inf") return -std::numeric_limits<double>::infinity();
@@ -85,10 +87,10 @@ class CellReader {
     return number(column);
   }
 
-  const std::string& text(std::size_t column) const { return cells_[column]; }
+  std::string_view text(std::size_t column) const { return cells_[column]; }
 
  private:
-  const std::vector<std::string>& cells_;
+  const std::vector<std::string_view>& cells_;
   const std::string& source_;
   int line_;
 };
@@ -104,7 +106,7 @@ std::string runs_line(const RunRecord& r) {
                      csv_number(r.loglik), r.iterations, r.converged ? 1 : 0, r.note, r.starts, r.confirmed ? 1 : 0);
 }
 
-RunRecord parse_runs_line(const std::string& line, const std::string& source, int line_number) {
+RunRecord parse_runs_line(std::string_view line, const std::string& source, int line_number) {
   const auto c = split(line);
   if (c.size() != runs_columns.size())
     throw InputError(source, line_number, "",
@@ -121,11 +123,11 @@ RunRecord parse_runs_line(const std::string& line, const std::string& source, in
   r.pilot = cells.count(5);
   // model_kl is a KL divergence: >= 0 (Gibbs' inequality), +inf allowed, nan not.
   r.model_kl = cells.optional_number(6);
-  if (r.model_kl && !(*r.model_kl >= 0.0)) cells.fail(6, "must be at least 0, got " + c[6]);
+  if (r.model_kl && !(*r.model_kl >= 0.0)) cells.fail(6, "must be at least 0, got " + std::string(c[6]));
   r.return_gap = cells.optional_number(7);
   // +inf only for a cell with no data (pilot budget 0 without logged episodes: unit.hpp, kNoData).
   if (r.return_gap && !std::isfinite(*r.return_gap) && !(*r.return_gap > 0.0 && c[11] == kNoData))
-    cells.fail(7, "must be a finite number or empty, got " + c[7]);
+    cells.fail(7, "must be a finite number or empty, got " + std::string(c[7]));
   r.loglik = cells.number(8);
   if (std::isnan(r.loglik)) cells.fail(8, "must be a number, got nan");
   r.iterations = cells.count(9);
@@ -133,11 +135,11 @@ RunRecord parse_runs_line(const std::string& line, const std::string& source, in
   r.converged = c[10] == "1";
   for (char ch : c[11])
     if (static_cast<unsigned char>(ch) < 0x20 || ch == 0x7f) cells.fail(11, "holds a control character: " + shown(c[11]));
-  r.note = c[11];
+  r.note = std::string(c[11]);
   r.starts = cells.count(12);
   if (c[13] != "0" && c[13] != "1") cells.fail(13, "must be 0 or 1, got " + shown(c[13]));
   r.confirmed = c[13] == "1";
-  if (r.confirmed && r.starts < 2) cells.fail(13, "is 1, but a best optimum is confirmed only by a second start (starts " + c[12] + ")");
+  if (r.confirmed && r.starts < 2) cells.fail(13, "is 1, but a best optimum is confirmed only by a second start (starts " + std::string(c[12]) + ")");
   return r;
 }
 

@@ -17,6 +17,7 @@
 #include <cstdint>
 #include <filesystem>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "core/running/run_record.hpp"
@@ -40,7 +41,7 @@ std::string timings_csv(const std::vector<RunRecord>& rows);
 // column, message) on a malformed line or a value out of range (see above). fit_seconds is not
 // part of runs.csv.
 std::string runs_line(const RunRecord& r);
-RunRecord parse_runs_line(const std::string& line, const std::string& source = "runs.csv", int line_number = 0);
+RunRecord parse_runs_line(std::string_view line, const std::string& source = "runs.csv", int line_number = 0);
 
 // The whole text of a runs.csv: the header, then one row per line (a final LF is optional; no empty
 // line inside). Throws only InputError (naming `source`, the 1-based line and the column).

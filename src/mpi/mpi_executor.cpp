@@ -22,6 +22,7 @@
 
 #include "core/running/stop.hpp"
 #include "io/journal.hpp"
+#include "io/run_directory.hpp"
 
 namespace dobudget::mpi {
 namespace {
@@ -76,26 +77,16 @@ class DrawContextCache {
 // A RESULT message holds the units.journal records (io/journal.hpp) of one or more units, each
 // "<unit index> TAB <CRC-32> TAB <rows>" LF, each row a runs.csv line and ",<fit_seconds>" in the
 // shortest text that reads back to the same double, so a unit computed on another rank is recorded
-// exactly as if computed here, and a message garbled in transit is caught by the checksums.
-std::vector<std::pair<std::size_t, std::vector<RunRecord>>> decode_results(const std::string& text,
-                                                                           const std::vector<UnitId>& units, int rank) {
-  std::size_t intact = 0;
-  bool torn = false;
-  const std::string source = fmt::format("MPI result from rank {}", rank);
-  auto records = io::Journal::parse(text, &intact, &torn, source);
-  if (torn || records.empty() || intact != text.size())
-    throw std::runtime_error(source + ": not a sequence of intact unit records");
-  std::vector<std::pair<std::size_t, std::vector<RunRecord>>> out;
-  out.reserve(records.size());
-  for (auto& [index, rows] : records) {
-    if (index >= units.size()) throw std::runtime_error(fmt::format("{}: unit {} does not exist", source, index));
-    const UnitId& u = units[index];
-    for (const auto& r : rows)
-      if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
-        throw std::runtime_error(fmt::format("{}: the record of unit {} holds a row of another unit", source, index));
-    out.emplace_back(index, std::move(rows));
-  }
-  return out;
+// exactly as if computed here (the text is journaled as received: Journal::append_batch), and a
+// message garbled in transit is caught by the checksums (Journal::parse_batch) before any of it is
+// recorded. This is the check that the rows are the unit's.
+std::string unit_rows_problem(const std::vector<UnitId>& units, std::size_t index, const std::vector<RunRecord>& rows) {
+  if (index >= units.size()) return fmt::format("unit {} does not exist", index);
+  const UnitId& u = units[index];
+  for (const auto& r : rows)
+    if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
+      return "it holds a row of another unit";
+  return {};
 }
 
 // Guided self-scheduling (C. D. Polychronopoulos and D. J. Kuck, "Guided self-scheduling: a
@@ -108,6 +99,34 @@ std::vector<std::pair<std::size_t, std::vector<RunRecord>>> decode_results(const
 std::size_t batch_size(std::size_t remaining, std::size_t slots_total) {
   const std::size_t d = 2 * std::max<std::size_t>(1, slots_total);
   return std::max<std::size_t>(1, (remaining + d - 1) / d);
+}
+
+// An ASSIGN names its batch as runs of consecutive unit indices, (first, count) pairs: a batch is
+// a slice of `todo`, which is consecutive but where a resumed directory or a shard leaves gaps, so
+// it is mostly one pair, 16 bytes, whatever its size. A short message goes out eagerly; a list of
+// every index (5 KB for 625 units) is above OpenMPI's eager limit for shared memory (4,096 bytes in
+// OpenMPI 4.1.4: btl_vader_eager_limit, `ompi_info --param btl vader --level 9`), and its MPI_Send
+// would wait for the worker to take it.
+std::vector<unsigned long long> as_runs(const std::vector<unsigned long long>& batch) {
+  std::vector<unsigned long long> runs;
+  for (unsigned long long index : batch) {
+    if (!runs.empty() && runs[runs.size() - 2] + runs.back() == index) ++runs.back();
+    else runs.insert(runs.end(), {index, 1});
+  }
+  return runs;
+}
+
+// The indices of an ASSIGN's runs; an empty vector when the runs are malformed (an odd count, a
+// run of no unit, or one reaching beyond `units`).
+std::vector<std::size_t> from_runs(const std::vector<unsigned long long>& runs, std::size_t units) {
+  std::vector<std::size_t> batch;
+  if (runs.size() % 2 != 0) return {};
+  for (std::size_t k = 0; k < runs.size(); k += 2) {
+    const unsigned long long first = runs[k], count = runs[k + 1];
+    if (count == 0 || first >= units || count > units - first) return {};
+    for (unsigned long long i = first; i < first + count; ++i) batch.push_back(static_cast<std::size_t>(i));
+  }
+  return batch;
 }
 
 // Units assigned to a worker but not started when a stop comes are cut short at once: moved from
@@ -133,6 +152,12 @@ class Backoff {
  private:
   Micros wait_{50};
 };
+
+// How long a worker holds the records of finished units while it still has work (it sends them
+// sooner when rank 0 would hand it more, or on a stop): a killed job (SIGKILL: SIGTERM still sends
+// them) loses at most this much finished work per worker thread besides the units running, and a
+// worker sends at most about 1 / result_flush_interval RESULTs a second that hand out nothing.
+constexpr std::chrono::milliseconds result_flush_interval{500};
 
 // Rank 0's cap: 1% of the mean unit time, within [1 ms, 10 ms]. Every wake-up costs the core it
 // shares with a compute thread (measured: about 50 us in a virtual machine here, so polling every
@@ -203,11 +228,11 @@ Coordinator::Coordinator(const Session& session)
     : size_(session.size()), units_by_rank_(static_cast<std::size_t>(session.size()), 0) {}
 
 void Coordinator::release_workers() {
-  if (!workers_stopped_) (*this)(Study{}, {}, {}, 1, RunnerHooks{});
+  if (!workers_stopped_) (*this)(Study{}, {}, {}, 1, io::ExecutorHooks{});
 }
 
 void Coordinator::operator()(const Study& study, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo,
-                             int threads, const RunnerHooks& hooks) {
+                             int threads, const io::ExecutorHooks& hooks) {
   if (workers_stopped_) {  // a second call: the workers are gone, this process computes alone
     run_units(study, units, todo, threads, hooks);
     return;
@@ -256,6 +281,24 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
       if (!failure) failure = std::current_exception();
     }
   };
+  // A worker's RESULT, checked and decoded: journaled with one write (on_records), or unit by unit
+  // when the caller takes single units only.
+  auto deliver_batch = [&](int rank, io::Journal::Batch&& batch, double seconds) {
+    std::lock_guard lock(mutex);
+    const std::size_t n = batch.units.size();
+    units_by_rank_[static_cast<std::size_t>(rank)] += n;
+    unit_seconds += seconds;
+    units_timed += n;
+    try {
+      if (hooks.on_records) {
+        hooks.on_records(std::move(batch));
+      } else if (hooks.on_unit) {
+        for (auto& [index, rows] : batch.units) hooks.on_unit(index, std::move(rows));
+      }
+    } catch (...) {
+      if (!failure) failure = std::current_exception();
+    }
+  };
 
   // Rank 0's own compute threads.
   std::vector<std::thread> pool;
@@ -283,28 +326,30 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
     Clock::time_point last_result{};
   };
   std::vector<Peer> peers(static_cast<std::size_t>(size_));
-  std::map<std::size_t, std::pair<int, Clock::time_point>> assigned;  // remote units in flight: rank, ASSIGN time
+  // Remote units in flight, by unit index: the rank holding it (0: none) and when it was assigned.
+  // A vector, not a map: rank 0 touches it twice per unit, and units.size() entries are small.
+  struct Assignment {
+    int rank = 0;
+    Clock::time_point sent{};
+  };
+  std::vector<Assignment> assigned(todo.empty() ? 0 : units.size());
   int stopped = 0;
   bool cancel_sent = false;
   // Compute threads of the whole job, for the batch size: a rank not yet READY is counted with
-  // rank 0's number of threads (the same --threads, or the same share of a node's cores).
-  auto slots_total = [&] {
-    std::size_t total = static_cast<std::size_t>(local_threads);
-    for (int r = 1; r < size_; ++r) {
-      const int s = peers[static_cast<std::size_t>(r)].slots;
-      total += static_cast<std::size_t>(s > 0 ? s : std::max(1, threads));
-    }
-    return total;
-  };
+  // rank 0's number of threads (the same --threads, or the same share of a node's cores). Kept as
+  // a running total (corrected at each READY), not summed over the ranks for every batch.
+  const std::size_t assumed_slots = static_cast<std::size_t>(std::max(1, threads));
+  std::size_t slots_total = static_cast<std::size_t>(local_threads) + static_cast<std::size_t>(size_ - 1) * assumed_slots;
   auto refill = [&](int rank) {
     Peer& p = peers[static_cast<std::size_t>(rank)];
     while (p.in_flight < p.slots) {  // one batch per free slot
-      const std::vector<unsigned long long> batch = take_batch(slots_total());
+      const std::vector<unsigned long long> batch = take_batch(slots_total);
       if (batch.empty()) break;
-      MPI_Send(batch.data(), static_cast<int>(batch.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
+      const std::vector<unsigned long long> runs = as_runs(batch);
+      MPI_Send(runs.data(), static_cast<int>(runs.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
       ++batches_;
       const auto now = Clock::now();
-      for (unsigned long long i : batch) assigned[static_cast<std::size_t>(i)] = {rank, now};
+      for (unsigned long long i : batch) assigned[static_cast<std::size_t>(i)] = {rank, now};  // i < units.size(): from todo
       p.in_flight += static_cast<int>(batch.size());
     }
     if (p.in_flight == 0) {
@@ -341,7 +386,9 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
       if (status.MPI_TAG == ready_tag) {
         int slots = 0;
         MPI_Recv(&slots, 1, MPI_INT, rank, ready_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+        if (p.slots > 0) throw std::runtime_error(fmt::format("rank {} sent READY twice", rank));
         p.slots = std::max(1, slots);
+        slots_total = slots_total - assumed_slots + static_cast<std::size_t>(p.slots);
       } else if (status.MPI_TAG == result_tag) {
         ++result_messages_;
         int count = 0;
@@ -349,24 +396,28 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         std::string text(static_cast<std::size_t>(count), '\0');
         MPI_Recv(text.data(), count, MPI_CHAR, rank, result_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
         try {
-          auto results = decode_results(text, units, rank);
+          // Decoded once (CRC-32 and the rows' unit checked), then journaled as received.
+          io::Journal::Batch batch = io::Journal::parse_batch(
+              std::move(text), fmt::format("MPI result from rank {}", rank),
+              [&](std::size_t index, const std::vector<RunRecord>& rows) { return unit_rows_problem(units, index, rows); });
+          for (const auto& unit : batch.units)  // every unit first, so that nothing of a bad message is recorded
+            if (unit.first >= assigned.size() || assigned[unit.first].rank != rank)
+              throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, unit.first));
           // A unit's time, for the poll cap only: from the later of its ASSIGN and this rank's
           // previous RESULT to now, shared by the units of the message and multiplied by the
           // threads that were busy on them (units of a batch wait in the worker's queue).
           const auto now = Clock::now();
           const int busy = std::max(1, std::min(p.slots, p.in_flight));
-          for (auto& [index, rows] : results) {
-            const auto sent = assigned.find(index);
-            if (sent == assigned.end() || sent->second.first != rank)
-              throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, index));
-            const auto since = std::max(sent->second.second, p.last_result);
-            const double seconds = std::chrono::duration<double>(now - since).count() * busy /
-                                   static_cast<double>(results.size());
-            assigned.erase(sent);
-            --p.in_flight;
-            deliver(rank, index, std::move(rows), seconds);
+          double seconds = 0.0;
+          for (const auto& unit : batch.units) {
+            Assignment& a = assigned[unit.first];
+            seconds += std::chrono::duration<double>(now - std::max(a.sent, p.last_result)).count() * busy /
+                       static_cast<double>(batch.units.size());
+            a.rank = 0;
           }
+          p.in_flight -= static_cast<int>(batch.units.size());
           p.last_result = now;
+          deliver_batch(rank, std::move(batch), seconds);
         } catch (...) {
           abort_job(0, what(std::current_exception()));  // a unit record lost: in-flight counts are wrong
         }
@@ -376,10 +427,9 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         std::vector<unsigned long long> cut(static_cast<std::size_t>(std::max(0, count)));
         MPI_Recv(cut.data(), count, MPI_UNSIGNED_LONG_LONG, rank, cancelled_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
         for (unsigned long long index : cut) {
-          const auto sent = assigned.find(static_cast<std::size_t>(index));
-          if (sent == assigned.end() || sent->second.first != rank)
+          if (index >= assigned.size() || assigned[static_cast<std::size_t>(index)].rank != rank)
             throw std::runtime_error(fmt::format("rank {} cancelled unit {}, which it was not assigned", rank, index));
-          assigned.erase(sent);
+          assigned[static_cast<std::size_t>(index)].rank = 0;
           --p.in_flight;
         }
         worker_cancelled = true;  // not recorded; no unit is handed out any more
@@ -454,8 +504,11 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
 
     Backoff backoff;
     bool stop = false;
-    int held = 0;  // units assigned to this rank and not yet sent back
-    try {          // inside the pool's scope: abort the job before joinable threads would be destroyed
+    int held = 0;  // units assigned to this rank and not yet sent back (pending ones included)
+    std::string pending;  // records of finished units not yet sent
+    int pending_units = 0;
+    Clock::time_point pending_since{};  // when the oldest of them was taken from the outbox
+    try {  // inside the pool's scope: abort the job before joinable threads would be destroyed
       while (!stop) {
         std::deque<std::string> finished;
         std::deque<unsigned long long> abandoned;
@@ -466,18 +519,29 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           abandoned.swap(cut);
           error = failure;
         }
-        // Every unit finished since the last message goes in one RESULT, every unit cut short in one
-        // CANCELLED: rank 0 pays per message, and short units finish faster than it is polled.
-        if (!finished.empty()) {
-          std::string text;
-          for (const auto& record : finished) text += record;
-          MPI_Send(text.data(), static_cast<int>(text.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD);
+        const auto now = Clock::now();
+        for (const auto& record : finished) {
+          if (pending_units++ == 0) pending_since = now;
+          pending += record;
+        }
+        // Finished units go in one RESULT, cut ones in one CANCELLED: rank 0 pays per message. A
+        // RESULT is sent at once when rank 0 would hand out work on it (after it, this rank would
+        // hold fewer units than slots: rank 0 refills only then), when a stop or a failure is under
+        // way, and otherwise once the oldest pending unit has waited result_flush_interval, so
+        // that units of a long batch are not sent one message each.
+        const bool needs_work = held - pending_units < slots;
+        const bool stopping = error || !abandoned.empty() || cut_short.requested();
+        if (pending_units > 0 && (needs_work || stopping || now - pending_since >= result_flush_interval)) {
+          MPI_Send(pending.data(), static_cast<int>(pending.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD);
+          held -= pending_units;
+          pending.clear();
+          pending_units = 0;
         }
         if (!abandoned.empty()) {
           const std::vector<unsigned long long> list(abandoned.begin(), abandoned.end());
           MPI_Send(list.data(), static_cast<int>(list.size()), MPI_UNSIGNED_LONG_LONG, 0, cancelled_tag, MPI_COMM_WORLD);
         }
-        held -= static_cast<int>(finished.size() + abandoned.size());
+        held -= static_cast<int>(abandoned.size());
         if (error)
           abort_job(rank, what(error) +
                               " (the units finished so far are in units.journal: run the same command again "
@@ -491,15 +555,16 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           if (status.MPI_TAG == assign_tag) {
             int count = 0;
             MPI_Get_count(&status, MPI_UNSIGNED_LONG_LONG, &count);
-            std::vector<unsigned long long> batch(static_cast<std::size_t>(std::max(0, count)));
-            MPI_Recv(batch.data(), count, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
-            if (batch.empty()) abort_job(rank, "rank 0 assigned an empty batch");
-            for (unsigned long long index : batch)
-              if (index >= units.size())
-                abort_job(rank, fmt::format("rank 0 assigned unit {}, which does not exist", index));
+            std::vector<unsigned long long> runs(static_cast<std::size_t>(std::max(0, count)));
+            MPI_Recv(runs.data(), count, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            const std::vector<std::size_t> batch = from_runs(runs, units.size());
+            if (batch.empty())
+              abort_job(rank, fmt::format("rank 0 assigned a batch that is empty or names units that do not exist "
+                                          "(the study has {})",
+                                          units.size()));
             {
               std::lock_guard lock(mutex);
-              for (unsigned long long index : batch) queue.push_back(static_cast<std::size_t>(index));
+              for (std::size_t index : batch) queue.push_back(index);
             }
             held += static_cast<int>(batch.size());
             work_ready.notify_all();
@@ -521,13 +586,19 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
         if (!finished.empty() || !abandoned.empty()) backoff.reset();
         // Wake for a finished unit at once. Holding at least a unit per slot only CANCEL can come
         // (rank 0 writes to a worker only to fill a free slot, to stop one holding nothing, or to
-        // cancel): look for it every 100 ms; otherwise a reply is due soon: poll for it.
+        // cancel): look for it every 100 ms, or when pending units are due; otherwise a reply is
+        // due soon: poll for it.
         const auto done = [&] { return !outbox.empty() || !cut.empty() || failure != nullptr; };
         std::unique_lock lock(mutex);
-        if (held >= slots)
-          result_ready.wait_for(lock, Micros(100000), done);
-        else
+        if (held >= slots) {
+          auto wait = Micros(100000);
+          if (pending_units > 0)
+            wait = std::clamp(std::chrono::duration_cast<Micros>(pending_since + result_flush_interval - Clock::now()),
+                              Micros(0), wait);
+          result_ready.wait_for(lock, wait, done);
+        } else {
           result_ready.wait_for(lock, backoff.next(Micros(1000)), done);
+        }
       }
     } catch (const std::exception& e) {
       abort_job(rank, e.what());

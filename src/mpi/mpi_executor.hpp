@@ -20,9 +20,11 @@
 // (scenario, draw) it meets, shares it between its threads and releases it when the units handed
 // out (in canonical order) have moved past its draw and its last unit here has finished. Why rank 0 computes: with a
 // dedicated coordinator, 2 ranks would give 1 worker (at most 50% efficiency from 1 to 2 ranks);
-// serving costs rank 0's main thread about 7 us of CPU per unit (DEVELOPERS.md, "MPI hand-out
-// rate": about 140,000 units a second, enough for some 3,500 ranks of 25 ms units). A RESULT that
-// does not decode ends the job with MPI_Abort (how many units it held is unknown).
+// serving costs rank 0's main thread about 2 us of CPU per unit and 10 us per message
+// (DEVELOPERS.md, "MPI hand-out rate": 280,000-640,000 units per CPU second, enough for 7,000 to
+// 16,000 threads of 25 ms units, the fewer when RESULTs hold fewer units). A RESULT
+// that does not decode ends the job with MPI_Abort (how many units it held is unknown), before any
+// of its units is recorded.
 //
 // Threads: --threads T applies to every rank; without it each rank takes its node's cores divided
 // by the ranks on that node. OpenMPI binds each rank to one core when P <= 2 (to a socket above),
@@ -32,13 +34,21 @@
 //   tag 1 READY   worker -> 0  one int: the worker's number of compute threads (its slots); sent
 //                              once, when the worker has loaded the study.
 //   tag 2 ASSIGN  0 -> worker  unsigned long longs: a batch, the indices of units (into
-//                              enumerate_units) to compute, in canonical order; rank 0 sends one
+//                              enumerate_units) to compute, in canonical order, as (first index,
+//                              count) pairs of consecutive runs (mostly one pair); rank 0 sends one
 //                              batch per free slot, i.e. while fewer units than `slots` are in flight.
 //   tag 3 RESULT  worker -> 0  chars: the units.journal records (io/journal.hpp: index, CRC-32,
 //                              rows as runs.csv lines with ",<fit_seconds>"; shortest round-trip
 //                              numbers, so the rows read back exactly) of every unit the worker
-//                              finished since its last message; rank 0 journals them one by one and
-//                              refills the freed slots with ASSIGNs while work is left.
+//                              finished since its last message. Sent at once when rank 0 would hand
+//                              out work on it (the worker would then hold fewer units than slots) or
+//                              on a stop or failure, else when the oldest has waited 0.5 s (a killed
+//                              job loses at most that much finished work per worker thread besides
+//                              the units running; SIGTERM loses none); rank 0 checks and decodes them once
+//                              (io::Journal::parse_batch: CRC-32, rows of the unit, assigned to this
+//                              rank), appends the text as received with one write and one fflush
+//                              (ExecutorHooks::on_records, Journal::append_batch) and refills the
+//                              freed slots with ASSIGNs while work is left.
 //   tag 4 STOP    0 -> worker  empty: no more work; sent once, when the queue is exhausted (or a
 //                              stop was requested, or a unit failed) and the worker has nothing in
 //                              flight, so no message is ever left unreceived.
@@ -49,8 +59,9 @@
 //   tag 6 CANCEL  0 -> worker  empty: a stop was requested on rank 0; the worker abandons the units
 //                              it holds (each answers RESULT if it was finished, else CANCELLED).
 //                              Sent once per worker holding units, when rank 0 first sees the stop.
-// Rank 0 calls hooks.on_unit for remote units from its main thread and for local units from its
-// compute threads, always under one mutex (never two at once). When hooks.stop_requested() turns
+// Rank 0 calls hooks.on_records (or, when it is not set, hooks.on_unit per unit) for remote units
+// from its main thread and hooks.on_unit for local units from its compute threads, always under
+// one mutex (never two at once). When hooks.stop_requested() turns
 // true (SIGTERM or SIGINT on rank 0), no new unit is handed out, the units in progress are cut
 // short (rank 0's own through the stop token, the workers' by CANCEL, or by their own signal: mpirun
 // signals every rank), finished ones are still recorded, cut ones never, and then every worker is
@@ -74,6 +85,7 @@
 #include "core/running/runner.hpp"
 #include "core/running/settings.hpp"
 #include "core/running/unit.hpp"
+#include "io/run_directory.hpp"
 
 namespace dobudget::mpi {
 
@@ -110,7 +122,7 @@ class Coordinator {
  public:
   explicit Coordinator(const Session& session);
   void operator()(const Study& study, const std::vector<UnitId>& units, const std::vector<std::size_t>& todo,
-                  int threads, const RunnerHooks& hooks);
+                  int threads, const io::ExecutorHooks& hooks);
   // Stops the workers if the executor has not run, so that they are not left waiting when
   // plan_study fails before it hands out work (a directory of another study, say). Idempotent.
   void release_workers();

@@ -2,7 +2,9 @@
 // (never half-read) and the file truncated to its intact prefix, a damaged record before the last
 // is an error naming the file and the line, one flipped bit anywhere in a record or the header is
 // caught, a journal of another study (or without a header) is refused, a record that is not its
-// unit's or repeats a unit is refused, and one writer at a time.
+// unit's or repeats a unit is refused, and one writer at a time. A batch (an MPI worker's records,
+// appended with one write) holds the same bytes as its records appended one by one, and a
+// garbled record in it is refused before anything of the batch is written.
 #include <catch2/catch.hpp>
 #include <unistd.h>
 
@@ -331,6 +333,99 @@ TEST_CASE("journal: a record whose rows are not its unit's, or that repeats a un
                     Catch::Contains(file.string() + ":3: the record of unit 2") &&
                         Catch::Contains("Delete that line to have its unit computed again"));
   CHECK(slurp(file) == swapped);
+}
+
+TEST_CASE("journal: a batch appended with one write holds the same bytes as its records appended one by one",
+          "[io][journal][batch]") {
+  // What rank 0 of an MPI run does with a worker's RESULT (src/mpi/mpi_executor.cpp): the records
+  // as the worker encoded them (Journal::record), checked and decoded once, written verbatim.
+  TempDir d("batch");
+  const fs::path one_by_one = d.path / "one-by-one.journal", batched = d.path / "batched.journal";
+  {
+    Journal j(one_by_one, hash);
+    j.append(4, unit_rows(0));
+    j.append(0, unit_rows(1));
+    j.append(17, unit_rows(2));
+    j.append(5, unit_rows(3));
+  }
+  {
+    Journal j(batched, hash);
+    Journal::Batch first = Journal::parse_batch(Journal::record(4, unit_rows(0)), "MPI result from rank 2");
+    Journal::Batch rest = Journal::parse_batch(
+        Journal::record(0, unit_rows(1)) + Journal::record(17, unit_rows(2)) + Journal::record(5, unit_rows(3)),
+        "MPI result from rank 3");
+    REQUIRE(rest.units.size() == 3);  // decoded in the order of the text
+    CHECK(rest.units[0].first == 0);
+    CHECK(rest.units[1].first == 17);
+    CHECK(rest.units[2].first == 5);
+    require_same(rest.units[1].second, unit_rows(2));
+    j.append_batch(std::move(first));
+    j.append_batch(std::move(rest));
+    REQUIRE(j.units().size() == 4);  // kept as append() keeps them
+    require_same(j.units().at(4), unit_rows(0));
+    require_same(j.units().at(5), unit_rows(3));
+  }
+  const std::string text = slurp(batched);
+  CHECK(text == slurp(one_by_one));  // byte for byte
+  Journal j(batched, hash);          // and it reads back bit for bit
+  REQUIRE(j.units().size() == 4);
+  require_same(j.units().at(0), unit_rows(1));
+  require_same(j.units().at(17), unit_rows(2));
+}
+
+TEST_CASE("journal: a garbled record in a batch is refused naming the sender and the unit, and nothing of the batch "
+          "is written",
+          "[io][journal][batch]") {
+  TempDir d("batch-garbled");
+  const fs::path file = d.path / "units.journal";
+  const std::string r0 = Journal::record(0, unit_rows(0)), r1 = Journal::record(1, unit_rows(1)),
+                    r2 = Journal::record(2, unit_rows(2));
+  const std::string source = "MPI result from rank 3";
+  // As rank 0 does it: check and decode the whole message, then append it.
+  const auto receive = [&](const std::string& text) {
+    Journal j(file, hash);
+    j.append_batch(Journal::parse_batch(text, source, replicate_check));
+  };
+
+  std::string garbled = r1;
+  garbled[garbled.size() - 3] ^= 0x01;  // a digit of the last row's fit_seconds
+  const auto e = error_of([&] { receive(r0 + garbled + r2); });
+  CHECK(e.file == source);
+  CHECK(e.line == 2);  // the second record of the message
+  CHECK_THAT(e.what(), Catch::StartsWith("MPI result from rank 3:2: unit '1': damaged record (checksum mismatch)"));
+  CHECK_THAT(e.message, Catch::Contains("nothing of this batch is recorded"));
+  CHECK(slurp(file) == Journal::header(hash));  // not even the intact first record
+
+  // CRC-32 catches every single-bit error (Peterson and Brown 1961, "Cyclic codes for error
+  // detection"): every bit of every byte of the middle record, and of the last one (a batch has
+  // no torn tail to drop: a record cut short is refused too), refused, nothing written.
+  for (int which : {1, 2}) {
+    const std::string& rec = which == 1 ? r1 : r2;
+    for (std::size_t byte = 0; byte < rec.size(); ++byte)
+      for (int bit = 0; bit < 8; ++bit) {
+        std::string flipped = rec;
+        flipped[byte] = static_cast<char>(flipped[byte] ^ (1 << bit));
+        INFO("record " << which << ", byte " << byte << " bit " << bit);
+        const std::string text = which == 1 ? r0 + flipped + r2 : r0 + r1 + flipped;
+        const auto err = error_of([&] { Journal::parse_batch(text, source, replicate_check); });
+        CHECK(err.file == source);
+        CHECK(err.line == which + 1);
+      }
+  }
+  const auto cut = error_of([&] { receive(r0 + r1 + r2.substr(0, r2.size() - 1)); });
+  CHECK(cut.line == 3);
+  CHECK_THAT(cut.message, Catch::Contains("unit '2': damaged record (no end of line)"));
+
+  // Intact records that are not their unit's, or repeat a unit, or nothing at all: refused alike.
+  const auto foreign = error_of([&] { receive(r0 + Journal::record(2, unit_rows(3))); });
+  CHECK(foreign.line == 2);
+  CHECK_THAT(foreign.message,
+             Catch::Contains("unit 2: the record does not belong to it: it holds a row of replicate 3"));
+  const auto twice = error_of([&] { receive(r0 + r1 + r0); });
+  CHECK(twice.line == 3);
+  CHECK_THAT(twice.message, Catch::Contains("unit 0: recorded twice in one batch (records 1 and 3)"));
+  CHECK(error_of([&] { receive(""); }).file == source);
+  CHECK(slurp(file) == Journal::header(hash));
 }
 
 TEST_CASE("journal: the claim runs under the lock, and a journal created for a refused claim is removed",
