@@ -1,7 +1,8 @@
 // Benchmark (not a test): one EM iteration (E-step over the logged episodes, then the M-step) of
 // the regime-aware fit with each compiled build of the forward-backward kernel this CPU supports
-// (forward_backward.hpp: baseline SSE2 and AVX2 select parameters by blends, AVX-512 by a table
-// permute), alternating between the builds so that a shared machine's drift falls on all of them.
+// (forward_backward.hpp: the parameters of each lane's action and observation are selected by a
+// table permute, with AVX-512 up to 8 entries and with AVX2 up to 4, otherwise by a chain of
+// selections), alternating between the builds so that a shared machine's drift falls on all of them.
 // Default: the reference size, 2000 logged episodes, horizon 20, 8 latent values, 3 actions,
 // 6 observations. Every build must give the same log-likelihood bits; this is checked too.
 // Usage: bench_kernel_builds [repeats [episodes [latent [actions [observations [horizon]]]]]]

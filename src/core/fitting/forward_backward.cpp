@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <cstring>
 #include <type_traits>
 
 namespace dobudget {
@@ -36,6 +37,8 @@ struct Batch {
 // SSE2), so that every build compares and selects at its own register width (GCC splits a wider
 // vector's arithmetic into registers, but lowers its comparisons and selections lane by lane).
 // Element-wise IEEE operations only; unaligned loads and stores.
+// (The workspace is allocated as doubles and read through this type: with GCC a vector of doubles,
+// and a struct of them, share the alias set of double, so this is well defined there.)
 template <int N>
 struct Lanes {
   typedef double D __attribute__((vector_size(N * sizeof(double)), aligned(sizeof(double))));
@@ -48,7 +51,11 @@ struct Lanes {
   };
   [[gnu::always_inline]] static Lanes splat(double x) {
     Lanes r;
-    for (int c = 0; c < C; ++c) r.v[c] = D{} + x;
+    double copies[N];
+    for (int i = 0; i < N; ++i) copies[i] = x;  // a copy of x in every lane (-0 and NaN payloads kept)
+    D d;
+    std::memcpy(&d, copies, sizeof d);
+    for (int c = 0; c < C; ++c) r.v[c] = d;
     return r;
   }
   [[gnu::always_inline]] Lanes& operator+=(const Lanes& o) {
@@ -227,8 +234,8 @@ template <class L, int ZC, bool Perm>
 }
 
 // Backward pass: beta_H = 1 and, for t = H-1..0,
-//   u_{t+1}(z') = e_{t+1}(z') beta_{t+1}(z') / c_{t+1}   (kept as ul, 0 past the lane's end)
-//   beta_t(z) = sum_z' qT[a_t](z, z') ul(z')            (z' ascending from +0; + 1 past the end)
+//   u_{t+1}(z') = (e_{t+1}(z') beta_{t+1}(z')) (1 / c_{t+1})   (kept as ul, 0 past the lane's end)
+//   beta_t(z) = sum_z' qT[a_t](z, z') ul(z')                   (z' ascending from +0; 1 past the end)
 //   gamma_t(z) = alpha_t(z) beta_t(z)                    (kept as g; g_H = alpha_H)
 template <class L, int ZC, bool Perm>
 [[gnu::always_inline]] inline void backward(const Batch& b) {
@@ -246,7 +253,6 @@ template <class L, int ZC, bool Perm>
     const Index<L> fi = make_index<L, Perm>(select(idle, zero, ai));
     double* ul = b.ul + t * ZW;
     for (int y = 0; y < Z; ++y) at<L>(ul + y * W) = select(idle, zero, at<L>(e + y * W) * at<L>(beta + y * W) * inv);
-    const L add = select(idle, one, zero);
     in_blocks<ZC>(Z, [&](auto block, int z0) __attribute__((always_inline)) {
       constexpr int B = decltype(block)::value;
       L s[B];
@@ -259,7 +265,7 @@ template <class L, int ZC, bool Perm>
           s[k] += q * v;
         }
       }
-      for (int k = 0; k < B; ++k) at<L>(beta + (z0 + k) * W) = s[k] + add;
+      for (int k = 0; k < B; ++k) at<L>(beta + (z0 + k) * W) = select(idle, one, s[k]);
     });
     const double* al = b.alpha + t * ZW;
     double* g = b.g + t * ZW;
@@ -342,7 +348,8 @@ template <class L, int ZC>
   };
   by(b.gE, b.ob, b.O, b.H);
   if (b.decision) by(b.gA, b.ac, b.A, b.H - 1);
-  for (int z = 0; z < Z; ++z) at<L>(b.g0 + z * W) += at<L>(b.g + z * W) * at<L>(b.live);
+  const auto live = at<L>(b.live) == 1.0;
+  for (int z = 0; z < Z; ++z) at<L>(b.g0 + z * W) = select(live, at<L>(b.g0 + z * W) + at<L>(b.g + z * W), at<L>(b.g0 + z * W));
 }
 
 template <class L, int ZC, bool Perm, bool PermE>
@@ -374,7 +381,7 @@ template <class L, bool Perm, bool PermE>
 // AVX2 (4) and for AVX-512 (8). No FMA is enabled and -ffp-contract=off applies to all three, and
 // every lane's arithmetic is written out element by element, so the builds differ only in register
 // width and in how a selection is made (AVX-512 permutes a table when the actions and observations
-// fit in kPack slots).
+// fit in its 8 slots, AVX2 when they fit in 4; otherwise, and in SSE2, a chain of selections).
 void kernel_baseline(const Batch& b, bool counts) { dispatch<Lanes<2>, false, false>(b, counts); }
 #if defined(__x86_64__) && defined(__GNUC__)
 #define DOBUDGET_KERNEL_X86 1

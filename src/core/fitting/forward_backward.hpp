@@ -4,9 +4,10 @@
 //
 // Per episode o_0, a_0, ..., a_{L-1}, o_L (L = length(i) <= H), with e_t(z) = qE(z, o_t) w_t(z) and
 // w_t(z) = qA(z, a_t) on logged steps t < L of a regime-aware fit and 1 otherwise:
-//   alpha_0(z)      = q0(z) e_0(z) / c_0
-//   alpha_{t+1}(z') = [sum_z alpha_t(z) qT[a_t](z, z')] e_{t+1}(z') / c_{t+1}
-//   beta_L(z) = 1,  u_{t+1}(z') = e_{t+1}(z') beta_{t+1}(z') / c_{t+1},  beta_t(z) = sum_z' qT[a_t](z, z') u_{t+1}(z')
+//   alpha_0(z)      = q0(z) e_0(z),                                 c_0 = sum_z alpha_0(z)
+//   alpha_{t+1}(z') = [sum_z alpha_t(z) qT[a_t](z, z')] e_{t+1}(z'),  c_{t+1} = sum_z' alpha_{t+1}(z')
+//   each alpha_t then multiplied by 1 / c_t (the normalised alpha is used from there on)
+//   beta_L(z) = 1,  u_{t+1}(z') = (e_{t+1}(z') beta_{t+1}(z')) (1 / c_{t+1}),  beta_t(z) = sum_z' qT[a_t](z, z') u_{t+1}(z')
 //   log p(episode) = sum_t log c_t
 //   gamma_t(z) = alpha_t(z) beta_t(z)
 //   xi_t(z, z') = alpha_t(z) qT[a_t](z, z') u_{t+1}(z')
@@ -16,12 +17,15 @@
 // Batched kernel (issue 11): kLanes episodes of one view run at once, one per vector lane
 // (structure of arrays, lane index fastest). Every lane performs exactly the sequence of IEEE
 // operations of its episode run alone: each lane's parameters for its own a_t and o_t are selected
-// (a table permute, or a chain of selections: exact either way), every sum starts from +0 and runs
-// in a fixed order (z ascending; over t descending for the counts), and steps past an episode's
-// end are left out by the same selections. kLanes is fixed, not the register width, so the order
-// in which counts are summed over lanes does not depend on the CPU: the SSE2, AVX2 and AVX-512
-// builds give the bits of a plain scalar loop over the episodes (the test "every build of the
-// kernel performs the operations of one episode run alone", tests/core/fitting/test_forward_backward.cpp).
+// (a table permute, or a chain of selections: both move bits without arithmetic), every sum starts
+// from +0 and runs in a fixed order (z ascending; over t descending for the counts), and steps past
+// an episode's end are left out by the same selections. Episode i of a call is counted in lane
+// i mod kLanes, and the lanes' counts are added in lane order at the end of the call. kLanes is
+// fixed, not the register width, so the SSE2, AVX2 and AVX-512 builds give the bits of a plain
+// scalar loop over the episodes written that way (the test "every build of the kernel performs the
+// operations of one episode run alone", tests/core/fitting/test_forward_backward.cpp); across
+// machines this assumes the same libm `log`. Precondition (checked where data is read and
+// simulated): every o_t is in 0..O-1 and every a_t in 0..A-1.
 #pragma once
 #include <vector>
 

@@ -745,19 +745,61 @@ bool fb_same_bits(const Matrix& x, const Matrix& y) {
   return x.size() == y.size() && std::memcmp(x.data(), y.data(), sizeof(double) * static_cast<std::size_t>(x.size())) == 0;
 }
 
+// Every build of the kernel this CPU supports against fb_scalar_order, bit for bit: two calls
+// adding to the same counts (all episodes, then the first n_half), and the log-likelihood alone.
+// Returns how many builds were compared.
+int fb_compare_builds(const Pomdp& m, const Matrix* D, const Dataset& d, int n_half, Regime regime) {
+  const int Z = m.states, A = m.actions, O = m.observations;
+  ExpectedCounts ref;
+  ref.reset(Z, A, O);
+  fb_scalar_order(m, D, {&d, d.count, regime}, ref);
+  fb_scalar_order(m, D, {&d, n_half, regime}, ref);
+  int compared = 0;
+  for (KernelPath path : {KernelPath::baseline, KernelPath::avx2, KernelPath::avx512}) {
+    INFO("Z=" << Z << " A=" << A << " O=" << O << " H=" << d.horizon << " n=" << d.count << " path "
+              << kernel_path_name(path) << (regime == Regime::logged ? " logged" : " pilot")
+              << (D == nullptr ? " (no decision rule loaded)" : ""));
+    if (!kernel_path_supported(path)) {
+      WARN("kernel path " << kernel_path_name(path) << " not supported by this CPU: not compared");
+      continue;
+    }
+    ForwardBackward fb(Z, A, O, d.horizon);
+    fb.set_kernel_path(path);
+    fb.load(m, D);
+    ExpectedCounts c;
+    c.reset(Z, A, O);
+    fb.accumulate({&d, d.count, regime}, c);
+    fb.accumulate({&d, n_half, regime}, c);
+    CHECK(std::memcmp(&c.loglik, &ref.loglik, sizeof(double)) == 0);
+    CHECK(fb_same_bits(c.initial, ref.initial));
+    for (int a = 0; a < A; ++a)
+      CHECK(fb_same_bits(c.transitions[static_cast<std::size_t>(a)], ref.transitions[static_cast<std::size_t>(a)]));
+    CHECK(fb_same_bits(c.emissions, ref.emissions));
+    CHECK(fb_same_bits(c.decision, ref.decision));
+    ExpectedCounts once;
+    once.reset(Z, A, O);
+    const double ll_ref = fb_scalar_order(m, D, {&d, d.count, regime}, once);
+    const double ll = fb.log_likelihood({&d, d.count, regime});
+    CHECK(std::memcmp(&ll, &ll_ref, sizeof(double)) == 0);
+    ++compared;
+  }
+  return compared;
+}
+
 TEST_CASE("forward-backward: every build of the kernel performs the operations of one episode run alone",
           "[forward_backward]") {
   // Sizes cover the compiled latent sizes (1-8), the general kernel (9, 11, 16: blocks of 8 and
   // single outputs), more than 4 and more than 8 actions or observations (a table permute needs at
-  // most 4 with AVX2, 8 with AVX-512), one action, batches partly filled and episodes that stop
-  // early (length 0 included).
+  // most 4 with AVX2, 8 with AVX-512), one action, horizon 0, batches partly filled and episodes
+  // that stop early (length 0 included).
   struct Case {
     int Z, A, O, H, n;
   };
   const Case cases[] = {{1, 2, 3, 5, 9},   {2, 2, 2, 8, 37},  {3, 3, 4, 6, 8},   {4, 2, 2, 8, 101},
                         {5, 3, 3, 7, 13},  {6, 2, 5, 9, 21},  {7, 3, 3, 4, 10},  {9, 2, 3, 4, 11},
                         {8, 3, 6, 20, 50}, {8, 1, 8, 6, 17},  {8, 9, 3, 5, 23},  {4, 4, 10, 6, 19},
-                        {5, 6, 7, 5, 15},  {3, 8, 8, 4, 12},  {11, 3, 4, 5, 19}, {16, 2, 3, 4, 9}};
+                        {5, 6, 7, 5, 15},  {3, 8, 8, 4, 12},  {11, 3, 4, 5, 19}, {16, 2, 3, 4, 9},
+                        {3, 2, 3, 0, 9}};
   Engine rng(23);
   int compared = 0;
   for (const Case& k : cases) {
@@ -767,41 +809,45 @@ TEST_CASE("forward-backward: every build of the kernel performs the operations o
     boost::random::uniform_int_distribution<int> ul(0, k.H);
     d.lengths.resize(static_cast<std::size_t>(k.n));
     for (int i = 0; i < k.n; ++i) d.lengths[static_cast<std::size_t>(i)] = i % 3 == 0 ? ul(rng) : k.H;
-    for (Regime regime : {Regime::pilot, Regime::logged}) {
-      ExpectedCounts ref;
-      ref.reset(k.Z, k.A, k.O);
-      fb_scalar_order(m, &D, {&d, d.count, regime}, ref);
-      fb_scalar_order(m, &D, {&d, k.n / 2, regime}, ref);  // a second call adds to the same counts
-      for (KernelPath path : {KernelPath::baseline, KernelPath::avx2, KernelPath::avx512}) {
-        INFO("Z=" << k.Z << " A=" << k.A << " O=" << k.O << " n=" << k.n << " path " << kernel_path_name(path)
-                  << (regime == Regime::logged ? " logged" : " pilot"));
-        if (!kernel_path_supported(path)) {
-          WARN("kernel path " << kernel_path_name(path) << " not supported by this CPU: not compared");
-          continue;
-        }
-        ForwardBackward fb(k.Z, k.A, k.O, k.H);
-        fb.set_kernel_path(path);
-        fb.load(m, &D);
-        ExpectedCounts c;
-        c.reset(k.Z, k.A, k.O);
-        fb.accumulate({&d, d.count, regime}, c);
-        fb.accumulate({&d, k.n / 2, regime}, c);
-        CHECK(std::memcmp(&c.loglik, &ref.loglik, sizeof(double)) == 0);
-        CHECK(fb_same_bits(c.initial, ref.initial));
-        for (int a = 0; a < k.A; ++a)
-          CHECK(fb_same_bits(c.transitions[static_cast<std::size_t>(a)], ref.transitions[static_cast<std::size_t>(a)]));
-        CHECK(fb_same_bits(c.emissions, ref.emissions));
-        CHECK(fb_same_bits(c.decision, ref.decision));
-        ExpectedCounts once;
-        once.reset(k.Z, k.A, k.O);
-        const double ll_ref = fb_scalar_order(m, &D, {&d, d.count, regime}, once);
-        const double ll = fb.log_likelihood({&d, d.count, regime});
-        CHECK(std::memcmp(&ll, &ll_ref, sizeof(double)) == 0);
-        ++compared;
-      }
-    }
+    for (Regime regime : {Regime::pilot, Regime::logged}) compared += fb_compare_builds(m, &D, d, k.n / 2, regime);
   }
-  CHECK(compared >= 26);  // at least the baseline build for every case and regime
+  CHECK(compared >= 34);  // at least the baseline build for every case and regime
+
+  SECTION("every episode of a batch shorter than the dataset's horizon") {
+    const Pomdp m = fb_random_model(4, 3, 5, 9, rng);
+    const Matrix D = fb_random_decision(4, 3, rng);
+    Dataset d = fb_random_dataset(20, 9, 3, 5, rng);
+    d.lengths.assign(20, 0);
+    for (int i = 0; i < 20; ++i) d.lengths[static_cast<std::size_t>(i)] = i < 16 ? i % 7 : 9;  // two batches below 9
+    CHECK(fb_compare_builds(m, &D, d, 10, Regime::logged) >= 1);
+  }
+  SECTION("a logged view with no decision rule loaded") {
+    const Pomdp m = fb_random_model(5, 2, 4, 6, rng);
+    const Dataset d = fb_random_dataset(13, 6, 2, 4, rng);
+    CHECK(fb_compare_builds(m, nullptr, d, 6, Regime::logged) >= 1);
+  }
+  SECTION("a non-finite parameter of an action no episode takes stays out of every count") {
+    // Steps past an episode's end (and empty lanes) run the forward pass with action 0: what they
+    // compute must never reach a count or the log-likelihood, even when that matrix holds inf and
+    // NaN (the reference never touches it).
+    Pomdp m = fb_random_model(3, 2, 3, 7, rng);
+    m.transitions[0](0, 0) = std::numeric_limits<double>::infinity();
+    m.transitions[0](1, 2) = std::numeric_limits<double>::quiet_NaN();
+    const Matrix D = fb_random_decision(3, 2, rng);
+    Dataset d = fb_random_dataset(11, 7, 2, 3, rng);
+    for (auto& a : d.actions) a = 1;
+    d.lengths.assign(11, 7);
+    for (int i = 0; i < 11; i += 2) d.lengths[static_cast<std::size_t>(i)] = i % 7;
+    for (Regime regime : {Regime::pilot, Regime::logged}) CHECK(fb_compare_builds(m, &D, d, 5, regime) >= 1);
+  }
+  SECTION("negative zeros in the parameters are carried exactly") {
+    Pomdp m = fb_random_model(4, 3, 4, 5, rng);
+    m.emissions(1, 2) = -0.0;
+    m.transitions[2](3, 1) = -0.0;
+    const Matrix D = fb_random_decision(4, 3, rng);
+    const Dataset d = fb_random_dataset(17, 5, 3, 4, rng);
+    for (Regime regime : {Regime::pilot, Regime::logged}) CHECK(fb_compare_builds(m, &D, d, 8, regime) >= 1);
+  }
 }
 
 TEST_CASE("forward-backward: maximise is the Dirichlet MAP update of brute-force counts", "[forward_backward]") {
