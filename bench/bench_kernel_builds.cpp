@@ -7,6 +7,8 @@
 // 6 observations. Every build must give the same log-likelihood bits; this is checked too.
 // Usage: bench_kernel_builds [repeats [episodes [latent [actions [observations [horizon]]]]]]
 // Prints per build the median and minimum of this thread's CPU milliseconds per iteration.
+// (The set-up repeats bench_em.cpp's on purpose: bench/compare.sh builds bench_em.cpp alone against
+// older commits, so it includes nothing of bench/.)
 #include <algorithm>
 #include <cstdio>
 #include <cstdlib>

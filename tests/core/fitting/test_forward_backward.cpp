@@ -584,64 +584,6 @@ TEST_CASE("forward-backward: batches of mixed lengths and partly filled lanes eq
   }
 }
 
-TEST_CASE("forward-backward: every compiled build of the kernel gives the same bits", "[forward_backward]") {
-  // The kernel is compiled for the x86-64 baseline (SSE2), AVX2 and AVX-512 and the widest one this
-  // CPU supports runs. IEEE 754 operations are correctly rounded, so the same operations on the
-  // same operands in the same order give the same bits whatever the vector width (IEEE Std
-  // 754-2008, clause 11, "Reproducible floating-point results"); this checks that the builds do
-  // perform the same operations (no contraction into FMA, no reordered sums): every count and the
-  // log-likelihood must equal the baseline's bit for bit. Paths this CPU lacks are reported, not run.
-  struct Case {
-    int Z, A, O, H, n;
-  };
-  const Case cases[] = {{1, 2, 3, 5, 9},   {2, 2, 2, 8, 37},  {3, 3, 4, 6, 8},  {4, 2, 2, 8, 101},
-                        {5, 3, 3, 7, 13},  {6, 2, 5, 9, 21},  {8, 3, 6, 20, 50}, {11, 3, 4, 5, 19}};
-  Engine rng(11);
-  int compared = 0;
-  for (const Case& k : cases) {
-    const Pomdp m = fb_random_model(k.Z, k.A, k.O, k.H, rng);
-    const Matrix D = fb_random_decision(k.Z, k.A, rng);
-    Dataset d = fb_random_dataset(k.n, k.H, k.A, k.O, rng);
-    boost::random::uniform_int_distribution<int> ul(0, k.H);
-    d.lengths.resize(static_cast<std::size_t>(k.n));
-    for (int i = 0; i < k.n; ++i) d.lengths[static_cast<std::size_t>(i)] = i % 3 == 0 ? ul(rng) : k.H;
-    for (Regime regime : {Regime::pilot, Regime::logged}) {
-      auto run = [&](KernelPath path, ExpectedCounts& c) {
-        ForwardBackward fb(k.Z, k.A, k.O, k.H);
-        fb.set_kernel_path(path);
-        fb.load(m, &D);
-        c.reset(k.Z, k.A, k.O);
-        fb.accumulate({&d, d.count, regime}, c);
-        fb.accumulate({&d, k.n / 2, regime}, c);  // a second call adds to the same counts
-        return fb.log_likelihood({&d, d.count, regime});
-      };
-      ExpectedCounts base;
-      const double base_ll = run(KernelPath::baseline, base);
-      for (KernelPath path : {KernelPath::avx2, KernelPath::avx512}) {
-        INFO("Z=" << k.Z << " A=" << k.A << " n=" << k.n << " path " << kernel_path_name(path)
-                  << (regime == Regime::logged ? " logged" : " pilot"));
-        if (!kernel_path_supported(path)) {
-          WARN("kernel path " << kernel_path_name(path) << " not supported by this CPU: not compared");
-          continue;
-        }
-        ExpectedCounts c;
-        const double ll = run(path, c);
-        auto same = [](const Matrix& x, const Matrix& y) {
-          return x.size() == y.size() && std::memcmp(x.data(), y.data(), sizeof(double) * static_cast<std::size_t>(x.size())) == 0;
-        };
-        CHECK(std::memcmp(&ll, &base_ll, sizeof ll) == 0);
-        CHECK(std::memcmp(&c.loglik, &base.loglik, sizeof ll) == 0);
-        CHECK(same(c.initial, base.initial));
-        for (int a = 0; a < k.A; ++a) CHECK(same(c.transitions[static_cast<std::size_t>(a)], base.transitions[static_cast<std::size_t>(a)]));
-        CHECK(same(c.emissions, base.emissions));
-        CHECK(same(c.decision, base.decision));
-        ++compared;
-      }
-    }
-  }
-  if (kernel_path_supported(KernelPath::avx2)) CHECK(compared >= 16);
-}
-
 // The order of operations forward_backward.hpp promises, written out one episode at a time in
 // plain scalar double arithmetic (no vectors, no masks): scaled forward-backward (Rabiner 1989,
 // sec. V.A), every sum from +0 in the stated order, each episode's counts added to the accumulator
