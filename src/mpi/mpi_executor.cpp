@@ -101,32 +101,72 @@ std::size_t batch_size(std::size_t remaining, std::size_t slots_total) {
   return std::max<std::size_t>(1, (remaining + d - 1) / d);
 }
 
-// An ASSIGN names its batch as runs of consecutive unit indices, (first, count) pairs: a batch is
-// a slice of `todo`, which is consecutive but where a resumed directory or a shard leaves gaps, so
-// it is mostly one pair, 16 bytes, whatever its size. A short message goes out eagerly; a list of
-// every index (5 KB for 625 units) is above OpenMPI's eager limit for shared memory (4,096 bytes in
-// OpenMPI 4.1.4: btl_vader_eager_limit, `ompi_info --param btl vader --level 9`), and its MPI_Send
-// would wait for the worker to take it.
-std::vector<unsigned long long> as_runs(const std::vector<unsigned long long>& batch) {
-  std::vector<unsigned long long> runs;
+// An ASSIGN names its batch in one of two encodings, told apart by its first word:
+//   0, then (first, count, stride) triples: runs of units first, first + stride, ...,
+//      first + (count - 1) * stride. A batch is a slice of `todo`, which is ascending; a fresh run
+//      is one triple (stride 1), a --shard run of N shards one triple of stride N, a resumed
+//      directory one triple per stretch between the units already journaled.
+//   1, then every unit index: used when the triples would not be shorter (gaps at random).
+// So the message has at most batch + 1 words and usually 4 (32 bytes), far below OpenMPI's eager
+// limit for shared memory (4,096 bytes in OpenMPI 4.1.4: btl_vader_eager_limit, `ompi_info --param
+// btl vader --level 9`). Above it the send waits for the worker to take it, which no longer risks
+// a deadlock (the workers never block in a send: serve_as_worker), but stalls rank 0 meanwhile.
+constexpr unsigned long long assign_runs = 0, assign_list = 1;
+
+std::vector<unsigned long long> encode_assign(const std::vector<unsigned long long>& batch) {
+  std::vector<unsigned long long> runs{assign_runs};
   for (unsigned long long index : batch) {
-    if (!runs.empty() && runs[runs.size() - 2] + runs.back() == index) ++runs.back();
-    else runs.insert(runs.end(), {index, 1});
+    const std::size_t k = runs.size() - 3;  // the last triple, when there is one
+    if (runs.size() > 1 && runs[k + 1] == 1 && index > runs[k]) {
+      runs[k + 1] = 2;  // a run of one unit takes any later unit as its second, setting the stride
+      runs[k + 2] = index - runs[k];
+    } else if (runs.size() > 1 && index == runs[k] + runs[k + 1] * runs[k + 2]) {
+      ++runs[k + 1];
+    } else {
+      runs.insert(runs.end(), {index, 1, 1});
+    }
   }
-  return runs;
+  if (runs.size() - 1 < batch.size()) return runs;
+  std::vector<unsigned long long> list{assign_list};
+  list.insert(list.end(), batch.begin(), batch.end());
+  return list;
 }
 
-// The indices of an ASSIGN's runs; an empty vector when the runs are malformed (an odd count, a
-// run of no unit, or one reaching beyond `units`).
-std::vector<std::size_t> from_runs(const std::vector<unsigned long long>& runs, std::size_t units) {
-  std::vector<std::size_t> batch;
-  if (runs.size() % 2 != 0) return {};
-  for (std::size_t k = 0; k < runs.size(); k += 2) {
-    const unsigned long long first = runs[k], count = runs[k + 1];
-    if (count == 0 || first >= units || count > units - first) return {};
-    for (unsigned long long i = first; i < first + count; ++i) batch.push_back(static_cast<std::size_t>(i));
+// The unit indices of an ASSIGN, refused (std::runtime_error saying what is wrong) unless it is
+// one of the two encodings above, of at least one unit, every index below `units`, and the
+// indices strictly ascending (runs ascending and disjoint): so a garbled message names at most
+// `units` units, and is checked in full before anything is allocated for its indices.
+std::vector<std::size_t> decode_assign(const std::vector<unsigned long long>& message, std::size_t units) {
+  if (message.size() < 2) throw std::runtime_error("rank 0 sent an ASSIGN of no unit");
+  const auto bad = [&](const std::string& why) {
+    return std::runtime_error(fmt::format("rank 0 sent a malformed ASSIGN ({} words): {} (the study has {} units)",
+                                          message.size(), why, units));
+  };
+  std::size_t total = 0;
+  if (message[0] == assign_runs) {
+    if ((message.size() - 1) % 3 != 0) throw bad("its runs are not (first, count, stride) triples");
+    unsigned long long next_free = 0;  // the least index the next run may start at
+    for (std::size_t k = 1; k < message.size(); k += 3) {
+      const unsigned long long first = message[k], count = message[k + 1], stride = message[k + 2];
+      if (count == 0 || stride == 0) throw bad(fmt::format("run {} has count {} and stride {}", k / 3 + 1, count, stride));
+      if (first < next_free || first >= units || (count - 1) > (units - 1 - first) / stride)
+        throw bad(fmt::format("run {} ({}, {}, {}) overlaps the one before or reaches beyond the last unit", k / 3 + 1,
+                              first, count, stride));
+      next_free = first + (count - 1) * stride + 1;
+      total += static_cast<std::size_t>(count);  // at most `units` in all: the runs are ascending and disjoint
+    }
+    std::vector<std::size_t> batch;
+    batch.reserve(total);
+    for (std::size_t k = 1; k < message.size(); k += 3)
+      for (unsigned long long j = 0; j < message[k + 1]; ++j)
+        batch.push_back(static_cast<std::size_t>(message[k] + j * message[k + 2]));
+    return batch;
   }
-  return batch;
+  if (message[0] != assign_list) throw bad(fmt::format("unknown encoding {}", message[0]));
+  for (std::size_t k = 1; k < message.size(); ++k)
+    if (message[k] >= units || (k > 1 && message[k] <= message[k - 1]))
+      throw bad(fmt::format("index {} ({}) is not below the last unit or not above the one before", k, message[k]));
+  return {message.begin() + 1, message.end()};
 }
 
 // Units assigned to a worker but not started when a stop comes are cut short at once: moved from
@@ -345,8 +385,11 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
     while (p.in_flight < p.slots) {  // one batch per free slot
       const std::vector<unsigned long long> batch = take_batch(slots_total);
       if (batch.empty()) break;
-      const std::vector<unsigned long long> runs = as_runs(batch);
-      MPI_Send(runs.data(), static_cast<int>(runs.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
+      const std::vector<unsigned long long> message = encode_assign(batch);
+      // Blocking: it returns once the worker has the message (at once for a short one, copied
+      // eagerly). No cycle: a worker never blocks in a send (serve_as_worker), so it keeps
+      // polling and takes this message whatever it is sending meanwhile.
+      MPI_Send(message.data(), static_cast<int>(message.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
       ++batches_;
       const auto now = Clock::now();
       for (unsigned long long i : batch) assigned[static_cast<std::size_t>(i)] = {rank, now};  // i < units.size(): from todo
@@ -457,7 +500,33 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
   try {
     const std::vector<UnitId> units = enumerate_units(study);
     const int slots = std::max(1, threads);
-    MPI_Send(&slots, 1, MPI_INT, 0, ready_tag, MPI_COMM_WORLD);
+    // Every message to rank 0 goes out with MPI_Isend and its buffer is kept here until MPI_Test
+    // reports the send complete; MPI keeps them in the order posted. This thread never blocks in
+    // a send, so it always comes back to MPI_Iprobe and takes what rank 0 sends. Rank 0 blocks
+    // only in a send to one worker (an ASSIGN, CANCEL or STOP, completed when that worker takes
+    // it) or in the MPI_Recv of a message already probed: rank 0 can wait for a worker, a worker
+    // never waits for rank 0, so no cycle of waits (deadlock) can form, whatever the messages'
+    // sizes. While a send is outstanding this thread polls at least every millisecond, so that
+    // MPI moves a large message along while rank 0 receives it.
+    struct Outgoing {
+      MPI_Request request = MPI_REQUEST_NULL;
+      std::string bytes;                     // RESULT
+      std::vector<unsigned long long> words;  // CANCELLED
+      int ready_slots = 0;                   // READY
+    };
+    std::deque<Outgoing> sending;  // a deque: its elements (the buffers MPI reads) never move
+    const auto send_done = [&] {   // drops the completed sends
+      for (auto it = sending.begin(); it != sending.end();) {
+        int done = 0;
+        MPI_Test(&it->request, &done, MPI_STATUS_IGNORE);
+        it = done ? sending.erase(it) : it + 1;
+      }
+    };
+    {
+      Outgoing& o = sending.emplace_back();
+      o.ready_slots = slots;
+      MPI_Isend(&o.ready_slots, 1, MPI_INT, 0, ready_tag, MPI_COMM_WORLD, &o.request);
+    }
 
     std::mutex mutex;
     std::condition_variable work_ready, result_ready;
@@ -532,14 +601,18 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
         const bool needs_work = held - pending_units < slots;
         const bool stopping = error || !abandoned.empty() || cut_short.requested();
         if (pending_units > 0 && (needs_work || stopping || now - pending_since >= result_flush_interval)) {
-          MPI_Send(pending.data(), static_cast<int>(pending.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD);
+          Outgoing& o = sending.emplace_back();
+          o.bytes = std::move(pending);
+          MPI_Isend(o.bytes.data(), static_cast<int>(o.bytes.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD, &o.request);
           held -= pending_units;
           pending.clear();
           pending_units = 0;
         }
         if (!abandoned.empty()) {
-          const std::vector<unsigned long long> list(abandoned.begin(), abandoned.end());
-          MPI_Send(list.data(), static_cast<int>(list.size()), MPI_UNSIGNED_LONG_LONG, 0, cancelled_tag, MPI_COMM_WORLD);
+          Outgoing& o = sending.emplace_back();
+          o.words.assign(abandoned.begin(), abandoned.end());
+          MPI_Isend(o.words.data(), static_cast<int>(o.words.size()), MPI_UNSIGNED_LONG_LONG, 0, cancelled_tag,
+                    MPI_COMM_WORLD, &o.request);
         }
         held -= static_cast<int>(abandoned.size());
         if (error)
@@ -547,6 +620,7 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
                               " (the units finished so far are in units.journal: run the same command again "
                               "to compute only the missing ones)");
 
+        send_done();
         int flag = 0;
         MPI_Status status;
         MPI_Iprobe(0, MPI_ANY_TAG, MPI_COMM_WORLD, &flag, &status);
@@ -555,13 +629,11 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           if (status.MPI_TAG == assign_tag) {
             int count = 0;
             MPI_Get_count(&status, MPI_UNSIGNED_LONG_LONG, &count);
-            std::vector<unsigned long long> runs(static_cast<std::size_t>(std::max(0, count)));
-            MPI_Recv(runs.data(), count, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
-            const std::vector<std::size_t> batch = from_runs(runs, units.size());
-            if (batch.empty())
-              abort_job(rank, fmt::format("rank 0 assigned a batch that is empty or names units that do not exist "
-                                          "(the study has {})",
-                                          units.size()));
+            if (count == MPI_UNDEFINED || count < 0)
+              abort_job(rank, "rank 0 sent an ASSIGN that is not a whole number of 64-bit words");
+            std::vector<unsigned long long> message(static_cast<std::size_t>(count));
+            MPI_Recv(message.data(), count, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            const std::vector<std::size_t> batch = decode_assign(message, units.size());  // throws: abort below
             {
               std::lock_guard lock(mutex);
               for (std::size_t index : batch) queue.push_back(index);
@@ -590,7 +662,9 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
         // due soon: poll for it.
         const auto done = [&] { return !outbox.empty() || !cut.empty() || failure != nullptr; };
         std::unique_lock lock(mutex);
-        if (held >= slots) {
+        if (!sending.empty()) {
+          result_ready.wait_for(lock, backoff.next(Micros(1000)), done);  // keep the sends moving
+        } else if (held >= slots) {
           auto wait = Micros(100000);
           if (pending_units > 0)
             wait = std::clamp(std::chrono::duration_cast<Micros>(pending_since + result_flush_interval - Clock::now()),
@@ -600,6 +674,8 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           result_ready.wait_for(lock, backoff.next(Micros(1000)), done);
         }
       }
+      // STOP came, so rank 0 has received every message of this rank: these complete at once.
+      for (Outgoing& o : sending) MPI_Wait(&o.request, MPI_STATUS_IGNORE);
     } catch (const std::exception& e) {
       abort_job(rank, e.what());
     }
