@@ -21,6 +21,7 @@
 #include <utility>
 
 #include "core/running/stop.hpp"
+#include "io/expected_rows.hpp"
 #include "io/journal.hpp"
 #include "io/run_directory.hpp"
 
@@ -79,15 +80,9 @@ class DrawContextCache {
 // shortest text that reads back to the same double, so a unit computed on another rank is recorded
 // exactly as if computed here (the text is journaled as received: Journal::append_batch), and a
 // message garbled in transit is caught by the checksums (Journal::parse_batch) before any of it is
-// recorded. This is the check that the rows are the unit's.
-std::string unit_rows_problem(const std::vector<UnitId>& units, std::size_t index, const std::vector<RunRecord>& rows) {
-  if (index >= units.size()) return fmt::format("unit {} does not exist", index);
-  const UnitId& u = units[index];
-  for (const auto& r : rows)
-    if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
-      return "it holds a row of another unit";
-  return {};
-}
+// recorded. Each record's rows are then checked as resume checks them (io::unit_rows_problem: the
+// unit exists, the row count, every row's key and measures), so a RESULT that a later resume
+// would refuse is refused here, before anything of it is journaled.
 
 // Guided self-scheduling (C. D. Polychronopoulos and D. J. Kuck, "Guided self-scheduling: a
 // practical scheduling scheme for parallel supercomputers", IEEE Trans. Computers 36(12), 1987):
@@ -439,10 +434,13 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         std::string text(static_cast<std::size_t>(count), '\0');
         MPI_Recv(text.data(), count, MPI_CHAR, rank, result_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
         try {
-          // Decoded once (CRC-32 and the rows' unit checked), then journaled as received.
+          // Decoded once (CRC-32 and the rows checked against their unit as resume checks them),
+          // then journaled as received.
           io::Journal::Batch batch = io::Journal::parse_batch(
               std::move(text), fmt::format("MPI result from rank {}", rank),
-              [&](std::size_t index, const std::vector<RunRecord>& rows) { return unit_rows_problem(units, index, rows); });
+              [&](std::size_t index, const std::vector<RunRecord>& rows) {
+                return io::unit_rows_problem(study, units, index, rows);
+              });
           for (const auto& unit : batch.units)  // every unit first, so that nothing of a bad message is recorded
             if (unit.first >= assigned.size() || assigned[unit.first].rank != rank)
               throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, unit.first));
