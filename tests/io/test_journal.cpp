@@ -6,7 +6,11 @@
 // appended with one write) holds the same bytes as its records appended one by one, and a
 // garbled record in it is refused before anything of the batch is written.
 #include <catch2/catch.hpp>
+#include <sys/resource.h>
+#include <sys/wait.h>
 #include <unistd.h>
+
+#include <csignal>
 
 #include <bit>
 #include <cmath>
@@ -371,6 +375,53 @@ TEST_CASE("journal: a batch appended with one write holds the same bytes as its 
   REQUIRE(j.units().size() == 4);
   require_same(j.units().at(0), unit_rows(1));
   require_same(j.units().at(17), unit_rows(2));
+}
+
+TEST_CASE("journal: after a failed write (a file size limit) the journal is cut back and refuses every later append",
+          "[io][journal]") {
+  // A full disk, simulated in a child process: RLIMIT_FSIZE a little above the journal's size
+  // (SIGXFSZ ignored, so write(2) fails with EFBIG after writing what fits). A record too long
+  // for the room left fails part-way; a short one that would still fit must then be refused too.
+  TempDir d("write-fails");
+  const fs::path file = d.path / "units.journal";
+  const std::string big = Journal::record(1, unit_rows(1));
+  const std::string small = Journal::record(2, {});  // a few bytes: fits in what is left
+  REQUIRE(big.size() > 200);
+  REQUIRE(small.size() < 40);
+  const pid_t child = ::fork();
+  REQUIRE(child >= 0);
+  if (child == 0) {
+    int code = 0;
+    try {
+      Journal j(file, hash);
+      j.append(0, unit_rows(0));
+      std::signal(SIGXFSZ, SIG_IGN);
+      const rlimit limit{static_cast<rlim_t>(fs::file_size(file) + 100), static_cast<rlim_t>(fs::file_size(file) + 100)};
+      if (::setrlimit(RLIMIT_FSIZE, &limit) != 0) ::_exit(10);
+      try {
+        j.append(1, unit_rows(1));
+        code = 11;  // the write should have failed
+      } catch (const std::runtime_error&) {
+      }
+      try {
+        j.append_batch(Journal::Batch{small, {}});
+        code = code ? code : 12;  // refused: an earlier append failed
+      } catch (const std::runtime_error& e) {
+        if (std::string(e.what()).find("an earlier append failed") == std::string::npos) code = code ? code : 13;
+      }
+    } catch (...) {
+      code = 14;
+    }
+    ::_exit(code);
+  }
+  int status = 0;
+  REQUIRE(::waitpid(child, &status, 0) == child);
+  REQUIRE(WIFEXITED(status));
+  CHECK(WEXITSTATUS(status) == 0);  // 11: the write did not fail; 12: a later append was accepted
+  CHECK(slurp(file) == Journal::header(hash) + Journal::record(0, unit_rows(0)));  // cut back to the whole record
+  Journal j(file, hash);  // and it resumes: unit 0 only, nothing torn
+  CHECK(j.units().size() == 1);
+  CHECK_FALSE(j.torn_tail_dropped());
 }
 
 TEST_CASE("journal: a garbled record in a batch is refused naming the sender and the unit, and nothing of the batch "
