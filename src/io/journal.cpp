@@ -11,6 +11,7 @@
 #include <cerrno>
 #include <charconv>
 #include <cstring>
+#include <new>
 #include <stdexcept>
 
 #include "io/csv.hpp"
@@ -47,10 +48,11 @@ std::string payload(const std::vector<RunRecord>& rows) {
 }
 
 // The rows of a payload; throws (InputError or std::runtime_error) on anything malformed. Views
-// into the text, no copies (rank 0 of an MPI run decodes every row a worker sends).
+// into the text, no copies (rank 0 of an MPI run decodes every row a worker sends). Nothing is
+// reserved ahead: the vector grows with the rows that parse, so a hostile record of many ';'
+// costs no more memory than the rows it really holds.
 std::vector<RunRecord> parse_payload(std::string_view p) {
   std::vector<RunRecord> rows;
-  rows.reserve(static_cast<std::size_t>(std::count(p.begin(), p.end(), ';')) + 1);
   std::size_t start = 0;
   while (start <= p.size()) {
     std::size_t end = p.find(';', start);
@@ -154,6 +156,8 @@ Journal::Units Journal::parse(const std::string& text, std::size_t* intact_bytes
     try {
       if (nl == std::string::npos) throw std::runtime_error("no end of line");
       rows = decode_record(std::string_view(text.data() + pos, nl - pos), &index);
+    } catch (const std::bad_alloc&) {
+      throw;  // out of memory is not a damaged record: never truncated away as a torn tail
     } catch (const std::exception& e) {
       if (!last)
         throw InputError(source, line, "",
@@ -359,6 +363,8 @@ Journal::Batch Journal::parse_batch(std::string text, const std::string& source,
     try {
       if (nl == std::string::npos) throw std::runtime_error("no end of line");
       rows = decode_record(rec, &index);
+    } catch (const std::bad_alloc&) {
+      throw;  // out of memory, not a damaged record
     } catch (const std::exception& e) {
       // The unit as the damaged record's index field reads (it may be the damaged part).
       const std::string_view field = rec.substr(0, std::min(rec.find('\t'), std::size_t{20}));

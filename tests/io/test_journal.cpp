@@ -5,7 +5,9 @@
 // unit's or repeats a unit is refused, and one writer at a time. A batch (an MPI worker's records,
 // appended with one write) holds the same bytes as its records appended one by one, and a
 // garbled record in it is refused before anything of the batch is written.
+#include <boost/crc.hpp>
 #include <catch2/catch.hpp>
+#include <fmt/format.h>
 #include <sys/resource.h>
 #include <sys/wait.h>
 #include <unistd.h>
@@ -422,6 +424,50 @@ TEST_CASE("journal: after a failed write (a file size limit) the journal is cut 
   Journal j(file, hash);  // and it resumes: unit 0 only, nothing torn
   CHECK(j.units().size() == 1);
   CHECK_FALSE(j.torn_tail_dropped());
+}
+
+TEST_CASE("journal: a record of many ';' costs no memory ahead of its rows", "[io][journal]") {
+#ifdef __SANITIZE_ADDRESS__
+  SUCCEED("skipped under AddressSanitizer, whose shadow memory needs more address space than the limit below");
+#else
+  // A record with an intact checksum whose payload is 20 million ';' (20 MB): reserving a row per
+  // ';' before any row parses would ask for gigabytes. In a child process limited to its present
+  // address space plus 512 MB, the record must be refused for what it is (a malformed row), not
+  // for want of memory.
+  const std::string payload(20'000'000, ';');
+  boost::crc_32_type crc;
+  crc.process_bytes("0\t", 2);
+  crc.process_bytes(payload.data(), payload.size());
+  const std::string text = Journal::header(hash) + fmt::format("0\t{:08x}\t", crc.checksum()) + payload + "\n" +
+                           Journal::record(1, unit_rows(1));
+  const pid_t child = ::fork();
+  REQUIRE(child >= 0);
+  if (child == 0) {
+    std::ifstream statm("/proc/self/statm");
+    std::size_t pages = 0;
+    statm >> pages;
+    const rlim_t room = static_cast<rlim_t>(pages) * static_cast<rlim_t>(::sysconf(_SC_PAGESIZE)) + (rlim_t{512} << 20);
+    const rlimit limit{room, room};
+    if (!statm || ::setrlimit(RLIMIT_AS, &limit) != 0) ::_exit(10);
+    int code = 11;  // accepted
+    try {
+      std::size_t intact = 0;
+      bool torn = false;
+      Journal::parse(text, &intact, &torn);
+    } catch (const dobudget::io::InputError& e) {
+      code = e.line == 2 && e.message.find("damaged record (malformed row)") != std::string::npos ? 0 : 12;
+    } catch (const std::bad_alloc&) {
+      code = 13;
+    } catch (...) {
+      code = 14;
+    }
+    ::_exit(code);
+  }
+  int status = 0;
+  REQUIRE(::waitpid(child, &status, 0) == child);
+  REQUIRE(WIFEXITED(status));
+  CHECK(WEXITSTATUS(status) == 0);  // 12: refused for another reason (bad_alloc read as damage); 13: bad_alloc
+#endif
 }
 
 TEST_CASE("journal: a garbled record in a batch is refused naming the sender and the unit, and nothing of the batch "
