@@ -23,12 +23,27 @@
 #include "core/running/stop.hpp"
 #include "io/expected_rows.hpp"
 #include "io/journal.hpp"
+#include "io/text_escape.hpp"
 #include "io/run_directory.hpp"
 
 namespace dobudget::mpi {
 namespace {
 
-enum Tag : int { ready_tag = 1, assign_tag = 2, result_tag = 3, stop_tag = 4, cancelled_tag = 5, cancel_tag = 6 };
+enum Tag : int {
+  ready_tag = 1,
+  assign_tag = 2,
+  result_tag = 3,
+  stop_tag = 4,
+  cancelled_tag = 5,
+  cancel_tag = 6,
+  failed_tag = 7,  // worker -> rank 0: a unit failed; the text says why; rank 0 ends the job
+};
+
+// The longest FAILED text rank 0 prints (the rest is cut): a garbled message cannot flood stderr.
+constexpr std::size_t failed_text_limit = 2000;
+
+// How long a worker that sent FAILED waits for rank 0 to end the job before ending it itself.
+constexpr std::chrono::seconds failed_grace{60};
 
 // One DrawContext per (scenario, draw), built by whichever thread of this process needs it first
 // and released once the run has moved past its draw. Units are handed out in the order of `todo`,
@@ -462,6 +477,19 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         } catch (...) {
           abort_job(0, what(std::current_exception()));  // a unit record lost: in-flight counts are wrong
         }
+      } else if (status.MPI_TAG == failed_tag) {
+        // A worker's unit failed. MPI delivers one sender's messages in the order it sent them,
+        // so every RESULT it sent before this one has been received and journaled above. Under
+        // the mutex no local thread is writing the journal when the job ends.
+        int count = 0;
+        MPI_Get_count(&status, MPI_CHAR, &count);
+        std::string text(static_cast<std::size_t>(std::max(0, count)), '\0');
+        MPI_Recv(text.data(), std::max(0, count), MPI_CHAR, rank, failed_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+        if (text.size() > failed_text_limit) text.resize(failed_text_limit);
+        std::lock_guard lock(mutex);
+        abort_job(0, fmt::format("rank {}: {} (the units journaled so far are kept in units.journal: run the same "
+                                 "command again to compute only the missing ones)",
+                                 rank, io::printable_line(text)));
       } else if (status.MPI_TAG == cancelled_tag) {
         int count = 0;
         MPI_Get_count(&status, MPI_UNSIGNED_LONG_LONG, &count);
@@ -613,10 +641,32 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
                     MPI_COMM_WORLD, &o.request);
         }
         held -= static_cast<int>(abandoned.size());
-        if (error)
-          abort_job(rank, what(error) +
-                              " (the units finished so far are in units.journal: run the same command again "
-                              "to compute only the missing ones)");
+        if (error) {
+          // The finished units went out above (RESULT); FAILED follows them, and rank 0, which
+          // receives this rank's messages in order, journals them before it ends the job with
+          // this text. Meanwhile this rank keeps its sends moving; should rank 0 not end the job
+          // within failed_grace, this rank ends it.
+          cancel = true;  // the other units of this rank stop at their next check
+          Outgoing& o = sending.emplace_back();
+          o.bytes = what(error);
+          MPI_Isend(o.bytes.data(), static_cast<int>(o.bytes.size()), MPI_CHAR, 0, failed_tag, MPI_COMM_WORLD,
+                    &o.request);
+          const auto deadline = Clock::now() + failed_grace;
+          while (Clock::now() < deadline) {
+            send_done();
+            int incoming = 0;  // take and drop what rank 0 sends meanwhile, so its sends complete
+            MPI_Status in{};
+            MPI_Iprobe(0, MPI_ANY_TAG, MPI_COMM_WORLD, &incoming, &in);
+            if (incoming) {
+              int bytes = 0;
+              MPI_Get_count(&in, MPI_BYTE, &bytes);
+              std::vector<char> dropped(static_cast<std::size_t>(std::max(0, bytes)));
+              MPI_Recv(dropped.data(), std::max(0, bytes), MPI_BYTE, 0, in.MPI_TAG, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            }
+            std::this_thread::sleep_for(std::chrono::milliseconds(1));
+          }
+          abort_job(rank, what(error) + " (rank 0 did not end the job after this rank reported the failure)");
+        }
 
         send_done();
         int flag = 0;
