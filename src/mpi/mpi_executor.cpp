@@ -11,6 +11,8 @@
 #include <ctime>
 #include <deque>
 #include <exception>
+#include <iterator>
+#include <list>
 #include <map>
 #include <memory>
 #include <mutex>
@@ -540,12 +542,14 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
       std::vector<unsigned long long> words;  // CANCELLED
       int ready_slots = 0;                   // READY
     };
-    std::deque<Outgoing> sending;  // a deque: its elements (the buffers MPI reads) never move
-    const auto send_done = [&] {   // drops the completed sends
+    // A list: erasing one send moves no other, so the buffers MPI reads (a short string's bytes
+    // and ready_slots lie inside the element) stay where they were posted.
+    std::list<Outgoing> sending;
+    const auto send_done = [&] {  // drops the completed sends
       for (auto it = sending.begin(); it != sending.end();) {
         int done = 0;
         MPI_Test(&it->request, &done, MPI_STATUS_IGNORE);
-        it = done ? sending.erase(it) : it + 1;
+        it = done ? sending.erase(it) : std::next(it);
       }
     };
     {
