@@ -26,6 +26,7 @@
 #include "io/expected_rows.hpp"
 #include "io/journal.hpp"
 #include "io/text_escape.hpp"
+#include "mpi/assign_message.hpp"
 #include "io/run_directory.hpp"
 
 namespace dobudget::mpi {
@@ -111,74 +112,6 @@ class DrawContextCache {
 std::size_t batch_size(std::size_t remaining, std::size_t slots_total) {
   const std::size_t d = 2 * std::max<std::size_t>(1, slots_total);
   return std::max<std::size_t>(1, (remaining + d - 1) / d);
-}
-
-// An ASSIGN names its batch in one of two encodings, told apart by its first word:
-//   0, then (first, count, stride) triples: runs of units first, first + stride, ...,
-//      first + (count - 1) * stride. A batch is a slice of `todo`, which is ascending; a fresh run
-//      is one triple (stride 1), a --shard run of N shards one triple of stride N, a resumed
-//      directory one triple per stretch between the units already journaled.
-//   1, then every unit index: used when the triples would not be shorter (gaps at random).
-// So the message has at most batch + 1 words and usually 4 (32 bytes), far below OpenMPI's eager
-// limit for shared memory (4,096 bytes in OpenMPI 4.1.4: btl_vader_eager_limit, `ompi_info --param
-// btl vader --level 9`). Above it the send waits for the worker to take it, which no longer risks
-// a deadlock (the workers never block in a send: serve_as_worker), but stalls rank 0 meanwhile.
-constexpr unsigned long long assign_runs = 0, assign_list = 1;
-
-std::vector<unsigned long long> encode_assign(const std::vector<unsigned long long>& batch) {
-  std::vector<unsigned long long> runs{assign_runs};
-  for (unsigned long long index : batch) {
-    const std::size_t k = runs.size() - 3;  // the last triple, when there is one
-    if (runs.size() > 1 && runs[k + 1] == 1 && index > runs[k]) {
-      runs[k + 1] = 2;  // a run of one unit takes any later unit as its second, setting the stride
-      runs[k + 2] = index - runs[k];
-    } else if (runs.size() > 1 && index == runs[k] + runs[k + 1] * runs[k + 2]) {
-      ++runs[k + 1];
-    } else {
-      runs.insert(runs.end(), {index, 1, 1});
-    }
-  }
-  if (runs.size() - 1 < batch.size()) return runs;
-  std::vector<unsigned long long> list{assign_list};
-  list.insert(list.end(), batch.begin(), batch.end());
-  return list;
-}
-
-// The unit indices of an ASSIGN, refused (std::runtime_error saying what is wrong) unless it is
-// one of the two encodings above, of at least one unit, every index below `units`, and the
-// indices strictly ascending (runs ascending and disjoint): so a garbled message names at most
-// `units` units, and is checked in full before anything is allocated for its indices.
-std::vector<std::size_t> decode_assign(const std::vector<unsigned long long>& message, std::size_t units) {
-  if (message.size() < 2) throw std::runtime_error("rank 0 sent an ASSIGN of no unit");
-  const auto bad = [&](const std::string& why) {
-    return std::runtime_error(fmt::format("rank 0 sent a malformed ASSIGN ({} words): {} (the study has {} units)",
-                                          message.size(), why, units));
-  };
-  std::size_t total = 0;
-  if (message[0] == assign_runs) {
-    if ((message.size() - 1) % 3 != 0) throw bad("its runs are not (first, count, stride) triples");
-    unsigned long long next_free = 0;  // the least index the next run may start at
-    for (std::size_t k = 1; k < message.size(); k += 3) {
-      const unsigned long long first = message[k], count = message[k + 1], stride = message[k + 2];
-      if (count == 0 || stride == 0) throw bad(fmt::format("run {} has count {} and stride {}", k / 3 + 1, count, stride));
-      if (first < next_free || first >= units || (count - 1) > (units - 1 - first) / stride)
-        throw bad(fmt::format("run {} ({}, {}, {}) overlaps the one before or reaches beyond the last unit", k / 3 + 1,
-                              first, count, stride));
-      next_free = first + (count - 1) * stride + 1;
-      total += static_cast<std::size_t>(count);  // at most `units` in all: the runs are ascending and disjoint
-    }
-    std::vector<std::size_t> batch;
-    batch.reserve(total);
-    for (std::size_t k = 1; k < message.size(); k += 3)
-      for (unsigned long long j = 0; j < message[k + 1]; ++j)
-        batch.push_back(static_cast<std::size_t>(message[k] + j * message[k + 2]));
-    return batch;
-  }
-  if (message[0] != assign_list) throw bad(fmt::format("unknown encoding {}", message[0]));
-  for (std::size_t k = 1; k < message.size(); ++k)
-    if (message[k] >= units || (k > 1 && message[k] <= message[k - 1]))
-      throw bad(fmt::format("index {} ({}) is not below the last unit or not above the one before", k, message[k]));
-  return {message.begin() + 1, message.end()};
 }
 
 // Units assigned to a worker but not started when a stop comes are cut short at once: moved from
