@@ -10,6 +10,8 @@
 #include <algorithm>
 #include <cerrno>
 #include <charconv>
+#include <cstring>
+#include <new>
 #include <stdexcept>
 
 #include "io/csv.hpp"
@@ -46,10 +48,11 @@ std::string payload(const std::vector<RunRecord>& rows) {
 }
 
 // The rows of a payload; throws (InputError or std::runtime_error) on anything malformed. Views
-// into the text, no copies (rank 0 of an MPI run decodes every row a worker sends).
+// into the text, no copies (rank 0 of an MPI run decodes every row a worker sends). Nothing is
+// reserved ahead: the vector grows with the rows that parse, so a hostile record of many ';'
+// costs no more memory than the rows it really holds.
 std::vector<RunRecord> parse_payload(std::string_view p) {
   std::vector<RunRecord> rows;
-  rows.reserve(static_cast<std::size_t>(std::count(p.begin(), p.end(), ';')) + 1);
   std::size_t start = 0;
   while (start <= p.size()) {
     std::size_t end = p.find(';', start);
@@ -153,6 +156,8 @@ Journal::Units Journal::parse(const std::string& text, std::size_t* intact_bytes
     try {
       if (nl == std::string::npos) throw std::runtime_error("no end of line");
       rows = decode_record(std::string_view(text.data() + pos, nl - pos), &index);
+    } catch (const std::bad_alloc&) {
+      throw;  // out of memory is not a damaged record: never truncated away as a torn tail
     } catch (const std::exception& e) {
       if (!last)
         throw InputError(source, line, "",
@@ -262,6 +267,8 @@ Journal::Journal(const std::filesystem::path& file, const std::string& study_has
     ::close(fd);
     throw std::runtime_error("cannot open " + file.string() + " for appending");
   }
+  // Unbuffered: a failed write leaves nothing in a stdio buffer that fclose could write later.
+  std::setvbuf(file_, nullptr, _IONBF, 0);
   try {
     if (while_locked) while_locked();
     const std::string text = read_descriptor(fd, file);  // what was locked, not a second lookup of the name
@@ -276,10 +283,12 @@ Journal::Journal(const std::filesystem::path& file, const std::string& study_has
     }
     if (intact < text.size() && ::ftruncate(fd, static_cast<off_t>(intact)) != 0)
       throw std::runtime_error("cannot truncate the torn record off " + file.string());
+    size_ = intact;
     if (intact == 0) {
       const std::string h = header(study_hash);
       if (std::fwrite(h.data(), 1, h.size(), file_) != h.size() || std::fflush(file_) != 0)
         throw std::runtime_error("cannot write " + file.string());
+      size_ = h.size();
     }
   } catch (...) {
     // Leave nothing behind: a journal this call created and nothing was written to is removed
@@ -307,23 +316,35 @@ bool Journal::in_use(const std::filesystem::path& file) {
   return busy;
 }
 
-namespace {
-
-// One write of `text` and one flush to the operating system.
-void write_flushed(std::FILE* file, std::string_view text) {
-  if (std::fwrite(text.data(), 1, text.size(), file) != text.size() || std::fflush(file) != 0)
-    throw std::runtime_error("cannot append to units.journal");
+// One write of `text` (the stream is unbuffered: one write(2), retried by stdio on a partial
+// write) and one flush to the operating system. After a failure (disk full, a file size limit) the
+// journal is cut back to its last whole record, when ftruncate allows, and refuses every later
+// append: otherwise a later, shorter record could land after a partial one, which resume would
+// refuse as an altered journal. Left as the last line, a partial record is a torn tail.
+void Journal::write_flushed(std::string_view text) {
+  if (broken_)
+    throw std::runtime_error("units.journal: an earlier append failed, so no more records are written (" + broken_why_ +
+                             ")");
+  if (std::fwrite(text.data(), 1, text.size(), file_) != text.size() || std::fflush(file_) != 0) {
+    const int error = errno;
+    broken_ = true;
+    std::clearerr(file_);
+    const bool cut = ::ftruncate(::fileno(file_), static_cast<off_t>(size_)) == 0;
+    broken_why_ = fmt::format("writing a record failed: {}; {}", std::strerror(error),
+                              cut ? "the journal was cut back to its last whole record"
+                                  : "its last record may be partial and is dropped on resume");
+    throw std::runtime_error("cannot append to units.journal: " + broken_why_);
+  }
+  size_ += text.size();
 }
 
-}  // namespace
-
 void Journal::append(std::size_t unit_index, const std::vector<RunRecord>& rows) {
-  write_flushed(file_, record(unit_index, rows));
+  write_flushed(record(unit_index, rows));
   units_[unit_index] = rows;
 }
 
 void Journal::append(std::size_t unit_index, std::vector<RunRecord>&& rows) {
-  write_flushed(file_, record(unit_index, rows));
+  write_flushed(record(unit_index, rows));
   units_[unit_index] = std::move(rows);
 }
 
@@ -342,6 +363,8 @@ Journal::Batch Journal::parse_batch(std::string text, const std::string& source,
     try {
       if (nl == std::string::npos) throw std::runtime_error("no end of line");
       rows = decode_record(rec, &index);
+    } catch (const std::bad_alloc&) {
+      throw;  // out of memory, not a damaged record
     } catch (const std::exception& e) {
       // The unit as the damaged record's index field reads (it may be the damaged part).
       const std::string_view field = rec.substr(0, std::min(rec.find('\t'), std::size_t{20}));
@@ -370,7 +393,7 @@ Journal::Batch Journal::parse_batch(std::string text, const std::string& source,
 }
 
 void Journal::append_batch(Batch&& batch) {
-  write_flushed(file_, batch.text);
+  write_flushed(batch.text);
   for (auto& [index, rows] : batch.units) units_[index] = std::move(rows);
 }
 

@@ -32,6 +32,7 @@
 #include <functional>
 #include <map>
 #include <string>
+#include <string_view>
 #include <utility>
 #include <vector>
 
@@ -65,7 +66,9 @@ class Journal {
   const Units& units() const { return units_; }
   bool torn_tail_dropped() const { return torn_; }
 
-  // Appends one finished unit and flushes it to the operating system.
+  // Appends one finished unit and flushes it to the operating system. Throws std::runtime_error
+  // when the write fails; the journal is then cut back to its last whole record (when ftruncate
+  // allows) and every later append throws too, so no record ever follows a partial one.
   void append(std::size_t unit_index, const std::vector<RunRecord>& rows);
   void append(std::size_t unit_index, std::vector<RunRecord>&& rows);  // the same, keeping `rows` without a copy
 
@@ -88,7 +91,8 @@ class Journal {
   // Appends a whole batch with one write and one flush to the operating system: its text
   // verbatim, so the journal holds the same bytes as append() of each unit in turn. Then keeps its
   // rows (moved, not copied). A crash mid-write can tear only the batch's last record written,
-  // which is dropped on resume like any torn tail. Throws std::runtime_error when the write fails.
+  // which is dropped on resume like any torn tail. Throws std::runtime_error when the write fails,
+  // and then refuses later appends as append() does.
   void append_batch(Batch&& batch);
 
   // The header line (with its LF) of a journal of the study with hash `study_hash`.
@@ -117,9 +121,14 @@ class Journal {
   static bool in_use(const std::filesystem::path& file);
 
  private:
+  void write_flushed(std::string_view text);
+
   Units units_;
   std::FILE* file_ = nullptr;
   bool torn_ = false;
+  std::size_t size_ = 0;     // bytes of whole records (and the header) in the file
+  bool broken_ = false;      // a write failed: no more appends
+  std::string broken_why_;   // what failed, for the refusals that follow
 };
 
 }  // namespace dobudget::io

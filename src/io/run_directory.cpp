@@ -137,7 +137,9 @@ PlanOutcome plan_study(const Study& study, const std::string& resolved, const Pl
     }
     if (!opt.shard || opt.shard->count == 1) {
       // Never a runs.csv that is not the study's full, consistent set of rows. Every record was
-      // checked against its unit, so a failure here is a bug, not the user's input.
+      // checked against its unit with unit_rows_problem (read back from the journal here, received
+      // from an MPI worker by the coordinator; the rest were computed by this process), so a
+      // failure here is a bug, not the user's input.
       try {
         check_rows_against_study(study, out.rows, (opt.out / "runs.csv").string());
       } catch (const InputError& e) {

@@ -11,6 +11,8 @@
 #include <ctime>
 #include <deque>
 #include <exception>
+#include <iterator>
+#include <list>
 #include <map>
 #include <memory>
 #include <mutex>
@@ -21,13 +23,30 @@
 #include <utility>
 
 #include "core/running/stop.hpp"
+#include "io/expected_rows.hpp"
 #include "io/journal.hpp"
+#include "io/text_escape.hpp"
+#include "mpi/assign_message.hpp"
 #include "io/run_directory.hpp"
 
 namespace dobudget::mpi {
 namespace {
 
-enum Tag : int { ready_tag = 1, assign_tag = 2, result_tag = 3, stop_tag = 4, cancelled_tag = 5, cancel_tag = 6 };
+enum Tag : int {
+  ready_tag = 1,
+  assign_tag = 2,
+  result_tag = 3,
+  stop_tag = 4,
+  cancelled_tag = 5,
+  cancel_tag = 6,
+  failed_tag = 7,  // worker -> rank 0: a unit failed; the text says why; rank 0 ends the job
+};
+
+// The longest FAILED text rank 0 prints (the rest is cut): a garbled message cannot flood stderr.
+constexpr std::size_t failed_text_limit = 2000;
+
+// How long a worker that sent FAILED waits for rank 0 to end the job before ending it itself.
+constexpr std::chrono::seconds failed_grace{60};
 
 // One DrawContext per (scenario, draw), built by whichever thread of this process needs it first
 // and released once the run has moved past its draw. Units are handed out in the order of `todo`,
@@ -79,15 +98,9 @@ class DrawContextCache {
 // shortest text that reads back to the same double, so a unit computed on another rank is recorded
 // exactly as if computed here (the text is journaled as received: Journal::append_batch), and a
 // message garbled in transit is caught by the checksums (Journal::parse_batch) before any of it is
-// recorded. This is the check that the rows are the unit's.
-std::string unit_rows_problem(const std::vector<UnitId>& units, std::size_t index, const std::vector<RunRecord>& rows) {
-  if (index >= units.size()) return fmt::format("unit {} does not exist", index);
-  const UnitId& u = units[index];
-  for (const auto& r : rows)
-    if (r.scenario != u.scenario || r.environment != u.draw || r.replicate != u.replicate)
-      return "it holds a row of another unit";
-  return {};
-}
+// recorded. Each record's rows are then checked as resume checks them (io::unit_rows_problem: the
+// unit exists, the row count, every row's key and measures), so a RESULT that a later resume
+// would refuse is refused here, before anything of it is journaled.
 
 // Guided self-scheduling (C. D. Polychronopoulos and D. J. Kuck, "Guided self-scheduling: a
 // practical scheduling scheme for parallel supercomputers", IEEE Trans. Computers 36(12), 1987):
@@ -99,34 +112,6 @@ std::string unit_rows_problem(const std::vector<UnitId>& units, std::size_t inde
 std::size_t batch_size(std::size_t remaining, std::size_t slots_total) {
   const std::size_t d = 2 * std::max<std::size_t>(1, slots_total);
   return std::max<std::size_t>(1, (remaining + d - 1) / d);
-}
-
-// An ASSIGN names its batch as runs of consecutive unit indices, (first, count) pairs: a batch is
-// a slice of `todo`, which is consecutive but where a resumed directory or a shard leaves gaps, so
-// it is mostly one pair, 16 bytes, whatever its size. A short message goes out eagerly; a list of
-// every index (5 KB for 625 units) is above OpenMPI's eager limit for shared memory (4,096 bytes in
-// OpenMPI 4.1.4: btl_vader_eager_limit, `ompi_info --param btl vader --level 9`), and its MPI_Send
-// would wait for the worker to take it.
-std::vector<unsigned long long> as_runs(const std::vector<unsigned long long>& batch) {
-  std::vector<unsigned long long> runs;
-  for (unsigned long long index : batch) {
-    if (!runs.empty() && runs[runs.size() - 2] + runs.back() == index) ++runs.back();
-    else runs.insert(runs.end(), {index, 1});
-  }
-  return runs;
-}
-
-// The indices of an ASSIGN's runs; an empty vector when the runs are malformed (an odd count, a
-// run of no unit, or one reaching beyond `units`).
-std::vector<std::size_t> from_runs(const std::vector<unsigned long long>& runs, std::size_t units) {
-  std::vector<std::size_t> batch;
-  if (runs.size() % 2 != 0) return {};
-  for (std::size_t k = 0; k < runs.size(); k += 2) {
-    const unsigned long long first = runs[k], count = runs[k + 1];
-    if (count == 0 || first >= units || count > units - first) return {};
-    for (unsigned long long i = first; i < first + count; ++i) batch.push_back(static_cast<std::size_t>(i));
-  }
-  return batch;
 }
 
 // Units assigned to a worker but not started when a stop comes are cut short at once: moved from
@@ -345,8 +330,11 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
     while (p.in_flight < p.slots) {  // one batch per free slot
       const std::vector<unsigned long long> batch = take_batch(slots_total);
       if (batch.empty()) break;
-      const std::vector<unsigned long long> runs = as_runs(batch);
-      MPI_Send(runs.data(), static_cast<int>(runs.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
+      const std::vector<unsigned long long> message = encode_assign(batch);
+      // Blocking: it returns once the worker has the message (at once for a short one, copied
+      // eagerly). No cycle: a worker never blocks in a send (serve_as_worker), so it keeps
+      // polling and takes this message whatever it is sending meanwhile.
+      MPI_Send(message.data(), static_cast<int>(message.size()), MPI_UNSIGNED_LONG_LONG, rank, assign_tag, MPI_COMM_WORLD);
       ++batches_;
       const auto now = Clock::now();
       for (unsigned long long i : batch) assigned[static_cast<std::size_t>(i)] = {rank, now};  // i < units.size(): from todo
@@ -396,10 +384,13 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         std::string text(static_cast<std::size_t>(count), '\0');
         MPI_Recv(text.data(), count, MPI_CHAR, rank, result_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
         try {
-          // Decoded once (CRC-32 and the rows' unit checked), then journaled as received.
+          // Decoded once (CRC-32 and the rows checked against their unit as resume checks them),
+          // then journaled as received.
           io::Journal::Batch batch = io::Journal::parse_batch(
               std::move(text), fmt::format("MPI result from rank {}", rank),
-              [&](std::size_t index, const std::vector<RunRecord>& rows) { return unit_rows_problem(units, index, rows); });
+              [&](std::size_t index, const std::vector<RunRecord>& rows) {
+                return io::unit_rows_problem(study, units, index, rows);
+              });
           for (const auto& unit : batch.units)  // every unit first, so that nothing of a bad message is recorded
             if (unit.first >= assigned.size() || assigned[unit.first].rank != rank)
               throw std::runtime_error(fmt::format("rank {} sent unit {}, which it was not assigned", rank, unit.first));
@@ -421,6 +412,19 @@ void Coordinator::operator()(const Study& study, const std::vector<UnitId>& unit
         } catch (...) {
           abort_job(0, what(std::current_exception()));  // a unit record lost: in-flight counts are wrong
         }
+      } else if (status.MPI_TAG == failed_tag) {
+        // A worker's unit failed. MPI delivers one sender's messages in the order it sent them,
+        // so every RESULT it sent before this one has been received and journaled above. Under
+        // the mutex no local thread is writing the journal when the job ends.
+        int count = 0;
+        MPI_Get_count(&status, MPI_CHAR, &count);
+        std::string text(static_cast<std::size_t>(std::max(0, count)), '\0');
+        MPI_Recv(text.data(), std::max(0, count), MPI_CHAR, rank, failed_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+        if (text.size() > failed_text_limit) text.resize(failed_text_limit);
+        std::lock_guard lock(mutex);
+        abort_job(0, fmt::format("rank {}: {} (the units journaled so far are kept in units.journal: run the same "
+                                 "command again to compute only the missing ones)",
+                                 rank, io::printable_line(text)));
       } else if (status.MPI_TAG == cancelled_tag) {
         int count = 0;
         MPI_Get_count(&status, MPI_UNSIGNED_LONG_LONG, &count);
@@ -457,7 +461,35 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
   try {
     const std::vector<UnitId> units = enumerate_units(study);
     const int slots = std::max(1, threads);
-    MPI_Send(&slots, 1, MPI_INT, 0, ready_tag, MPI_COMM_WORLD);
+    // Every message to rank 0 goes out with MPI_Isend and its buffer is kept here until MPI_Test
+    // reports the send complete; MPI keeps them in the order posted. This thread never blocks in
+    // a send, so it always comes back to MPI_Iprobe and takes what rank 0 sends. Rank 0 blocks
+    // only in a send to one worker (an ASSIGN, CANCEL or STOP, completed when that worker takes
+    // it) or in the MPI_Recv of a message already probed: rank 0 can wait for a worker, a worker
+    // never waits for rank 0, so no cycle of waits (deadlock) can form, whatever the messages'
+    // sizes. While a send is outstanding this thread polls at least every millisecond, so that
+    // MPI moves a large message along while rank 0 receives it.
+    struct Outgoing {
+      MPI_Request request = MPI_REQUEST_NULL;
+      std::string bytes;                     // RESULT
+      std::vector<unsigned long long> words;  // CANCELLED
+      int ready_slots = 0;                   // READY
+    };
+    // A list: erasing one send moves no other, so the buffers MPI reads (a short string's bytes
+    // and ready_slots lie inside the element) stay where they were posted.
+    std::list<Outgoing> sending;
+    const auto send_done = [&] {  // drops the completed sends
+      for (auto it = sending.begin(); it != sending.end();) {
+        int done = 0;
+        MPI_Test(&it->request, &done, MPI_STATUS_IGNORE);
+        it = done ? sending.erase(it) : std::next(it);
+      }
+    };
+    {
+      Outgoing& o = sending.emplace_back();
+      o.ready_slots = slots;
+      MPI_Isend(&o.ready_slots, 1, MPI_INT, 0, ready_tag, MPI_COMM_WORLD, &o.request);
+    }
 
     std::mutex mutex;
     std::condition_variable work_ready, result_ready;
@@ -532,21 +564,48 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
         const bool needs_work = held - pending_units < slots;
         const bool stopping = error || !abandoned.empty() || cut_short.requested();
         if (pending_units > 0 && (needs_work || stopping || now - pending_since >= result_flush_interval)) {
-          MPI_Send(pending.data(), static_cast<int>(pending.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD);
+          Outgoing& o = sending.emplace_back();
+          o.bytes = std::move(pending);
+          MPI_Isend(o.bytes.data(), static_cast<int>(o.bytes.size()), MPI_CHAR, 0, result_tag, MPI_COMM_WORLD, &o.request);
           held -= pending_units;
           pending.clear();
           pending_units = 0;
         }
         if (!abandoned.empty()) {
-          const std::vector<unsigned long long> list(abandoned.begin(), abandoned.end());
-          MPI_Send(list.data(), static_cast<int>(list.size()), MPI_UNSIGNED_LONG_LONG, 0, cancelled_tag, MPI_COMM_WORLD);
+          Outgoing& o = sending.emplace_back();
+          o.words.assign(abandoned.begin(), abandoned.end());
+          MPI_Isend(o.words.data(), static_cast<int>(o.words.size()), MPI_UNSIGNED_LONG_LONG, 0, cancelled_tag,
+                    MPI_COMM_WORLD, &o.request);
         }
         held -= static_cast<int>(abandoned.size());
-        if (error)
-          abort_job(rank, what(error) +
-                              " (the units finished so far are in units.journal: run the same command again "
-                              "to compute only the missing ones)");
+        if (error) {
+          // The finished units went out above (RESULT); FAILED follows them, and rank 0, which
+          // receives this rank's messages in order, journals them before it ends the job with
+          // this text. Meanwhile this rank keeps its sends moving; should rank 0 not end the job
+          // within failed_grace, this rank ends it.
+          cancel = true;  // the other units of this rank stop at their next check
+          Outgoing& o = sending.emplace_back();
+          o.bytes = what(error);
+          MPI_Isend(o.bytes.data(), static_cast<int>(o.bytes.size()), MPI_CHAR, 0, failed_tag, MPI_COMM_WORLD,
+                    &o.request);
+          const auto deadline = Clock::now() + failed_grace;
+          while (Clock::now() < deadline) {
+            send_done();
+            int incoming = 0;  // take and drop what rank 0 sends meanwhile, so its sends complete
+            MPI_Status in{};
+            MPI_Iprobe(0, MPI_ANY_TAG, MPI_COMM_WORLD, &incoming, &in);
+            if (incoming) {
+              int bytes = 0;
+              MPI_Get_count(&in, MPI_BYTE, &bytes);
+              std::vector<char> dropped(static_cast<std::size_t>(std::max(0, bytes)));
+              MPI_Recv(dropped.data(), std::max(0, bytes), MPI_BYTE, 0, in.MPI_TAG, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            }
+            std::this_thread::sleep_for(std::chrono::milliseconds(1));
+          }
+          abort_job(rank, what(error) + " (rank 0 did not end the job after this rank reported the failure)");
+        }
 
+        send_done();
         int flag = 0;
         MPI_Status status;
         MPI_Iprobe(0, MPI_ANY_TAG, MPI_COMM_WORLD, &flag, &status);
@@ -555,13 +614,11 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           if (status.MPI_TAG == assign_tag) {
             int count = 0;
             MPI_Get_count(&status, MPI_UNSIGNED_LONG_LONG, &count);
-            std::vector<unsigned long long> runs(static_cast<std::size_t>(std::max(0, count)));
-            MPI_Recv(runs.data(), count, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
-            const std::vector<std::size_t> batch = from_runs(runs, units.size());
-            if (batch.empty())
-              abort_job(rank, fmt::format("rank 0 assigned a batch that is empty or names units that do not exist "
-                                          "(the study has {})",
-                                          units.size()));
+            if (count == MPI_UNDEFINED || count < 0)
+              abort_job(rank, "rank 0 sent an ASSIGN that is not a whole number of 64-bit words");
+            std::vector<unsigned long long> message(static_cast<std::size_t>(count));
+            MPI_Recv(message.data(), count, MPI_UNSIGNED_LONG_LONG, 0, assign_tag, MPI_COMM_WORLD, MPI_STATUS_IGNORE);
+            const std::vector<std::size_t> batch = decode_assign(message, units.size());  // throws: abort below
             {
               std::lock_guard lock(mutex);
               for (std::size_t index : batch) queue.push_back(index);
@@ -590,7 +647,9 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
         // due soon: poll for it.
         const auto done = [&] { return !outbox.empty() || !cut.empty() || failure != nullptr; };
         std::unique_lock lock(mutex);
-        if (held >= slots) {
+        if (!sending.empty()) {
+          result_ready.wait_for(lock, backoff.next(Micros(1000)), done);  // keep the sends moving
+        } else if (held >= slots) {
           auto wait = Micros(100000);
           if (pending_units > 0)
             wait = std::clamp(std::chrono::duration_cast<Micros>(pending_since + result_flush_interval - Clock::now()),
@@ -600,6 +659,8 @@ void serve_as_worker(const Study& study, int threads, std::function<bool()> stop
           result_ready.wait_for(lock, backoff.next(Micros(1000)), done);
         }
       }
+      // STOP came, so rank 0 has received every message of this rank: these complete at once.
+      for (Outgoing& o : sending) MPI_Wait(&o.request, MPI_STATUS_IGNORE);
     } catch (const std::exception& e) {
       abort_job(rank, e.what());
     }

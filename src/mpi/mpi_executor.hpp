@@ -34,9 +34,12 @@
 //   tag 1 READY   worker -> 0  one int: the worker's number of compute threads (its slots); sent
 //                              once, when the worker has loaded the study.
 //   tag 2 ASSIGN  0 -> worker  unsigned long longs: a batch, the indices of units (into
-//                              enumerate_units) to compute, in canonical order, as (first index,
-//                              count) pairs of consecutive runs (mostly one pair); rank 0 sends one
-//                              batch per free slot, i.e. while fewer units than `slots` are in flight.
+//                              enumerate_units) to compute, in canonical order: 0 then (first,
+//                              count, stride) runs (one run for a fresh directory or a --shard run),
+//                              or 1 then every index when runs would not be shorter; the worker
+//                              refuses one not ascending, distinct and below the number of units.
+//                              Rank 0 sends one batch per free slot, i.e. while fewer units than
+//                              `slots` are in flight.
 //   tag 3 RESULT  worker -> 0  chars: the units.journal records (io/journal.hpp: index, CRC-32,
 //                              rows as runs.csv lines with ",<fit_seconds>"; shortest round-trip
 //                              numbers, so the rows read back exactly) of every unit the worker
@@ -45,8 +48,8 @@
 //                              on a stop or failure, else when the oldest has waited 0.5 s (a killed
 //                              job loses at most that much finished work per worker thread besides
 //                              the units running; SIGTERM loses none); rank 0 checks and decodes them once
-//                              (io::Journal::parse_batch: CRC-32, rows of the unit, assigned to this
-//                              rank), appends the text as received with one write and one fflush
+//                              (io::Journal::parse_batch: CRC-32, rows checked as resume checks them
+//                              by io::unit_rows_problem, assigned to this rank), appends the text as received with one write and one fflush
 //                              (ExecutorHooks::on_records, Journal::append_batch) and refills the
 //                              freed slots with ASSIGNs while work is left.
 //   tag 4 STOP    0 -> worker  empty: no more work; sent once, when the queue is exhausted (or a
@@ -59,6 +62,11 @@
 //   tag 6 CANCEL  0 -> worker  empty: a stop was requested on rank 0; the worker abandons the units
 //                              it holds (each answers RESULT if it was finished, else CANCELLED).
 //                              Sent once per worker holding units, when rank 0 first sees the stop.
+//   tag 7 FAILED  worker -> 0  chars: the error of a unit that failed on the worker, sent after the
+//                              RESULT of the units it finished; rank 0 ends the job with it.
+// Rank 0 sends with blocking MPI_Send; a worker sends with MPI_Isend only and keeps probing while
+// a send is outstanding, so rank 0 may wait for a worker but never a worker for rank 0: no cycle
+// of waits (deadlock), whatever the messages' sizes.
 // Rank 0 calls hooks.on_records (or, when it is not set, hooks.on_unit per unit) for remote units
 // from its main thread and hooks.on_unit for local units from its compute threads, always under
 // one mutex (never two at once). When hooks.stop_requested() turns
@@ -66,8 +74,9 @@
 // short (rank 0's own through the stop token, the workers' by CANCEL, or by their own signal: mpirun
 // signals every rank), finished ones are still recorded, cut ones never, and then every worker is
 // stopped: the journal holds only complete units and a rerun resumes. A failure on a worker (an exception while computing) is
-// printed with the rank and ends the job with MPI_Abort: rank 0 cannot finish without that unit,
-// and every unit finished so far is already in units.journal, so a rerun resumes. A failure on
+// sent to rank 0 as FAILED after the RESULT of the units that worker finished; rank 0, which
+// receives one sender's messages in order, has journaled them by then, prints the error with the
+// rank and ends the job with MPI_Abort (it cannot finish without that unit), so a rerun resumes. A failure on
 // rank 0 stops handing out work, collects what is in flight, stops the workers and is rethrown.
 //
 // Waiting without stealing the compute threads' cores: blocking MPI receives spin in OpenMPI, so

@@ -136,6 +136,30 @@ read -r remote batches <<<"$(sed -n 's/^MPI hand-out: \([0-9]*\) units to ranks 
 check "batches, mpirun -n 3: workers took units in batches ($remote units in $batches batches)" \
   test "${remote:-0}" -gt "${batches:-0}" -a "${batches:-0}" -ge 2
 
+# Large messages both ways (a deadlock while both sides sent with blocking MPI_Send above the eager
+# limit): 6,000 near-empty units, a directory whose journal keeps the units with index mod 5 in
+# {0, 2}, so the 3,600 left have gaps that (first, count, stride) runs do not compress and the
+# first ASSIGNs list about 600 indices (4.8 KB, above OpenMPI's 4 KB eager limit for shared
+# memory) while the workers send RESULTs of many records. runs.csv byte-identical to one process.
+sed 's/^replicates: 300$/replicates: 1500/' "$dir/many.yaml" >"$dir/big.yaml"
+"$dobudget" plan "$dir/big.yaml" --quiet --threads 1 --out "$dir/big-single" >"$dir/big-single.out"
+cp -r "$dir/big-single" "$dir/big-gaps"
+rm "$dir/big-gaps/runs.csv" "$dir/big-gaps/timings.csv" "$dir/big-gaps"/answer.*
+awk -F '\t' 'NR == 1 || $1 % 5 == 0 || $1 % 5 == 2' "$dir/big-single/units.journal" >"$dir/big-gaps/units.journal"
+code=0
+mpirun_n 3 plan "$dir/big.yaml" --threads 1 --out "$dir/big-gaps" >"$dir/big-gaps.out" 2>"$dir/big-gaps.err" || code=$?
+check "large ASSIGN and RESULT, mpirun -n 3: exit code 0 (got $code)" test "$code" -eq 0
+check "large ASSIGN and RESULT, mpirun -n 3: runs.csv byte-identical to one process" \
+  cmp "$dir/big-single/runs.csv" "$dir/big-gaps/runs.csv"
+check "large ASSIGN and RESULT, mpirun -n 3: 2,400 units resumed" grep -q "(2400 resumed)" "$dir/big-gaps.out"
+
+# --shard 1/3 of the big study under MPI: strided runs (stride 3), each unit once.
+code=0
+mpirun_n 3 plan "$dir/big.yaml" --quiet --threads 1 --shard 1/3 --out "$dir/big-shard" >"$dir/big-shard.out" 2>&1 || code=$?
+check "--shard 1/3 of 6,000 units under MPI: exit code 0 (got $code)" test "$code" -eq 0
+check "--shard 1/3 of 6,000 units under MPI: units 1, 4, ..., 5998 recorded once each" \
+  test "$(tail -n +2 "$dir/big-shard/units.journal" | cut -f1 | sort -n | tr '\n' ' ')" = "$(seq 1 3 5999 | tr '\n' ' ')"
+
 # SIGTERM to rank 0 part-way, once a few units are journalled: rank 0 stops handing out units and
 # sends CANCEL, the workers give back the units of their batches (CANCELLED), the job exits 130 with
 # only whole units journalled, and a rerun computes the rest: runs.csv byte-identical to one

@@ -4,6 +4,8 @@
 
 #include "core/running/unit.hpp"
 #include "io/expected_rows.hpp"
+#include "io/input_error.hpp"
+#include "io/journal.hpp"
 #include "io/study_file.hpp"
 #include "../core/run_records.hpp"
 
@@ -62,4 +64,36 @@ TEST_CASE("expected rows: a unit's own rows pass; any other set, order or measur
   CHECK_THAT(io::unit_rows_problem(study, units, 4, rows), Catch::Contains("return_gap is empty without a note"));
   rows[1].note = "no room for planning";
   CHECK(io::unit_rows_problem(study, units, 4, rows).empty());
+}
+
+// Rank 0 of an MPI run checks a worker's RESULT with Journal::parse_batch and this check, as resume
+// reads the journal (src/mpi/mpi_executor.cpp): a record with one row missing or of another unit
+// is refused before anything of the batch could be journaled, naming the record.
+TEST_CASE("expected rows: an MPI batch whose record is not its unit's is refused whole", "[io][expected_rows]") {
+  const Study study = io::parse_study(study_text, "expected.yaml");
+  const std::vector<UnitId> units = enumerate_units(study);
+  const io::Journal::RecordCheck check = [&](std::size_t index, const std::vector<RunRecord>& rows) {
+    return io::unit_rows_problem(study, units, index, rows);
+  };
+  const std::string good = io::Journal::record(3, rows_of(1, 0)) + io::Journal::record(4, rows_of(1, 1));
+  CHECK(io::Journal::parse_batch(good, "MPI result from rank 1", check).units.size() == 2);
+
+  auto short_rows = rows_of(1, 1);
+  short_rows.pop_back();  // 7 of the unit's 8 rows, each intact and of the right unit
+  const std::string missing = io::Journal::record(3, rows_of(1, 0)) + io::Journal::record(4, short_rows);
+  try {
+    io::Journal::parse_batch(missing, "MPI result from rank 1", check);
+    FAIL("a record of 7 of 8 rows was accepted");
+  } catch (const io::InputError& e) {
+    CHECK(e.line == 2);
+    CHECK_THAT(e.message, Catch::Contains("it has 7 rows") && Catch::Contains("nothing of this batch is recorded"));
+  }
+  auto wrong_key = rows_of(1, 1);
+  wrong_key[2].pilot = 20;  // the scenario, draw and replicate are the unit's; the budget is not
+  try {
+    io::Journal::parse_batch(io::Journal::record(4, wrong_key), "MPI result from rank 1", check);
+    FAIL("a record with a wrong budget was accepted");
+  } catch (const io::InputError& e) {
+    CHECK_THAT(e.message, Catch::Contains("row 3") && Catch::Contains("pilot is wrong"));
+  }
 }

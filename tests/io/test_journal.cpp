@@ -5,8 +5,14 @@
 // unit's or repeats a unit is refused, and one writer at a time. A batch (an MPI worker's records,
 // appended with one write) holds the same bytes as its records appended one by one, and a
 // garbled record in it is refused before anything of the batch is written.
+#include <boost/crc.hpp>
 #include <catch2/catch.hpp>
+#include <fmt/format.h>
+#include <sys/resource.h>
+#include <sys/wait.h>
 #include <unistd.h>
+
+#include <csignal>
 
 #include <bit>
 #include <cmath>
@@ -371,6 +377,97 @@ TEST_CASE("journal: a batch appended with one write holds the same bytes as its 
   REQUIRE(j.units().size() == 4);
   require_same(j.units().at(0), unit_rows(1));
   require_same(j.units().at(17), unit_rows(2));
+}
+
+TEST_CASE("journal: after a failed write (a file size limit) the journal is cut back and refuses every later append",
+          "[io][journal]") {
+  // A full disk, simulated in a child process: RLIMIT_FSIZE a little above the journal's size
+  // (SIGXFSZ ignored, so write(2) fails with EFBIG after writing what fits). A record too long
+  // for the room left fails part-way; a short one that would still fit must then be refused too.
+  TempDir d("write-fails");
+  const fs::path file = d.path / "units.journal";
+  const std::string big = Journal::record(1, unit_rows(1));
+  const std::string small = Journal::record(2, {});  // a few bytes: fits in what is left
+  REQUIRE(big.size() > 200);
+  REQUIRE(small.size() < 40);
+  const pid_t child = ::fork();
+  REQUIRE(child >= 0);
+  if (child == 0) {
+    int code = 0;
+    try {
+      Journal j(file, hash);
+      j.append(0, unit_rows(0));
+      std::signal(SIGXFSZ, SIG_IGN);
+      const rlimit limit{static_cast<rlim_t>(fs::file_size(file) + 100), static_cast<rlim_t>(fs::file_size(file) + 100)};
+      if (::setrlimit(RLIMIT_FSIZE, &limit) != 0) ::_exit(10);
+      try {
+        j.append(1, unit_rows(1));
+        code = 11;  // the write should have failed
+      } catch (const std::runtime_error&) {
+      }
+      try {
+        j.append_batch(Journal::Batch{small, {}});
+        code = code ? code : 12;  // refused: an earlier append failed
+      } catch (const std::runtime_error& e) {
+        if (std::string(e.what()).find("an earlier append failed") == std::string::npos) code = code ? code : 13;
+      }
+    } catch (...) {
+      code = 14;
+    }
+    ::_exit(code);
+  }
+  int status = 0;
+  REQUIRE(::waitpid(child, &status, 0) == child);
+  REQUIRE(WIFEXITED(status));
+  CHECK(WEXITSTATUS(status) == 0);  // 11: the write did not fail; 12: a later append was accepted
+  CHECK(slurp(file) == Journal::header(hash) + Journal::record(0, unit_rows(0)));  // cut back to the whole record
+  Journal j(file, hash);  // and it resumes: unit 0 only, nothing torn
+  CHECK(j.units().size() == 1);
+  CHECK_FALSE(j.torn_tail_dropped());
+}
+
+TEST_CASE("journal: a record of many ';' costs no memory ahead of its rows", "[io][journal]") {
+#ifdef __SANITIZE_ADDRESS__
+  SUCCEED("skipped under AddressSanitizer, whose shadow memory needs more address space than the limit below");
+#else
+  // A record with an intact checksum whose payload is 20 million ';' (20 MB): reserving a row per
+  // ';' before any row parses would ask for gigabytes. In a child process limited to its present
+  // address space plus 512 MB, the record must be refused for what it is (a malformed row), not
+  // for want of memory.
+  const std::string payload(20'000'000, ';');
+  boost::crc_32_type crc;
+  crc.process_bytes("0\t", 2);
+  crc.process_bytes(payload.data(), payload.size());
+  const std::string text = Journal::header(hash) + fmt::format("0\t{:08x}\t", crc.checksum()) + payload + "\n" +
+                           Journal::record(1, unit_rows(1));
+  const pid_t child = ::fork();
+  REQUIRE(child >= 0);
+  if (child == 0) {
+    std::ifstream statm("/proc/self/statm");
+    std::size_t pages = 0;
+    statm >> pages;
+    const rlim_t room = static_cast<rlim_t>(pages) * static_cast<rlim_t>(::sysconf(_SC_PAGESIZE)) + (rlim_t{512} << 20);
+    const rlimit limit{room, room};
+    if (!statm || ::setrlimit(RLIMIT_AS, &limit) != 0) ::_exit(10);
+    int code = 11;  // accepted
+    try {
+      std::size_t intact = 0;
+      bool torn = false;
+      Journal::parse(text, &intact, &torn);
+    } catch (const dobudget::io::InputError& e) {
+      code = e.line == 2 && e.message.find("damaged record (malformed row)") != std::string::npos ? 0 : 12;
+    } catch (const std::bad_alloc&) {
+      code = 13;
+    } catch (...) {
+      code = 14;
+    }
+    ::_exit(code);
+  }
+  int status = 0;
+  REQUIRE(::waitpid(child, &status, 0) == child);
+  REQUIRE(WIFEXITED(status));
+  CHECK(WEXITSTATUS(status) == 0);  // 12: refused for another reason (bad_alloc read as damage); 13: bad_alloc
+#endif
 }
 
 TEST_CASE("journal: a garbled record in a batch is refused naming the sender and the unit, and nothing of the batch "
