@@ -18,6 +18,7 @@
 #include <string>
 #include <vector>
 
+#include "../same_bits.hpp"
 #include "core/world/dataset.hpp"
 #include "core/fitting/fit.hpp"
 #include "core/fitting/forward_backward.hpp"
@@ -35,6 +36,7 @@
 #endif
 
 using namespace dobudget;
+using dobudget::test::same_bits;
 
 namespace {
 
@@ -683,10 +685,6 @@ double fb_scalar_order(const Pomdp& m, const Matrix* D, const DataView& v, Expec
   return ll;
 }
 
-bool fb_same_bits(const Matrix& x, const Matrix& y) {
-  return x.size() == y.size() && std::memcmp(x.data(), y.data(), sizeof(double) * static_cast<std::size_t>(x.size())) == 0;
-}
-
 // Every build of the kernel this CPU supports against fb_scalar_order, bit for bit: two calls
 // adding to the same counts (all episodes, then the first n_half), and the log-likelihood alone.
 // Returns how many builds were compared.
@@ -713,11 +711,11 @@ int fb_compare_builds(const Pomdp& m, const Matrix* D, const Dataset& d, int n_h
     fb.accumulate({&d, d.count, regime}, c);
     fb.accumulate({&d, n_half, regime}, c);
     CHECK(std::memcmp(&c.loglik, &ref.loglik, sizeof(double)) == 0);
-    CHECK(fb_same_bits(c.initial, ref.initial));
+    CHECK(same_bits(c.initial, ref.initial));
     for (int a = 0; a < A; ++a)
-      CHECK(fb_same_bits(c.transitions[static_cast<std::size_t>(a)], ref.transitions[static_cast<std::size_t>(a)]));
-    CHECK(fb_same_bits(c.emissions, ref.emissions));
-    CHECK(fb_same_bits(c.decision, ref.decision));
+      CHECK(same_bits(c.transitions[static_cast<std::size_t>(a)], ref.transitions[static_cast<std::size_t>(a)]));
+    CHECK(same_bits(c.emissions, ref.emissions));
+    CHECK(same_bits(c.decision, ref.decision));
     ExpectedCounts once;
     once.reset(Z, A, O);
     const double ll_ref = fb_scalar_order(m, D, {&d, d.count, regime}, once);

@@ -8,6 +8,7 @@
 #include <cstring>
 #include <vector>
 
+#include "../same_bits.hpp"
 #include "core/world/dataset.hpp"
 #include "core/fitting/fit.hpp"
 #include "core/measures/model_kl.hpp"
@@ -21,6 +22,7 @@
 #include "../random_pomdp.hpp"
 
 using namespace dobudget;
+using dobudget::test::same_bits;
 
 namespace {
 
@@ -58,12 +60,6 @@ Study st_study() {
   sc.settings.evaluation.trajectories = 40;
   st.scenarios.push_back(sc);
   return st;
-}
-
-template <class M>
-bool same_bits(const M& a, const M& b) {
-  return a.rows() == b.rows() && a.cols() == b.cols() &&
-         std::memcmp(a.data(), b.data(), sizeof(double) * static_cast<std::size_t>(a.size())) == 0;
 }
 
 }  // namespace
